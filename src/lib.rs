@@ -1,0 +1,7 @@
+//! skerry: a streaming multi-target tracker for harbour and coastal
+//! surveillance.
+
+pub mod engine;
+pub mod geo;
+pub mod stats;
+pub mod time;

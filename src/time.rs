@@ -1,0 +1,294 @@
+//! UTC timestamps at nanosecond resolution, RFC 3339 in and out.
+//!
+//! A [`Timestamp`] is a count of nanoseconds since 1970-01-01T00:00:00Z,
+//! ignoring leap seconds (as Unix time does). Feed times are parsed with
+//! [`Timestamp::parse_rfc3339`] and written with [`Timestamp::write_rfc3339`],
+//! which always writes `Z` and the shortest fraction that is exact, so the
+//! same instant always prints the same way (the track output is compared
+//! byte for byte).
+
+use std::fmt;
+
+/// Nanoseconds since the Unix epoch, UTC.
+#[derive(Copy, Clone, PartialEq, Eq, PartialOrd, Ord, Hash, Debug, Default)]
+pub struct Timestamp(i64);
+
+/// Why a time string was not accepted.
+#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
+pub enum TimeError {
+    #[error("not an RFC 3339 date-time (expected YYYY-MM-DDTHH:MM:SS[.fff]Z)")]
+    Syntax,
+    #[error("a date or time field is out of range")]
+    FieldRange,
+    #[error("outside the years 1970..9999")]
+    OutOfSpan,
+}
+
+const NANOS_PER_SEC: i64 = 1_000_000_000;
+
+/// Days from 1970-01-01 to the given proleptic Gregorian date
+/// (Howard Hinnant's `days_from_civil`, public domain algorithm).
+fn days_from_civil(y: i64, m: u32, d: u32) -> i64 {
+    let y = if m <= 2 { y - 1 } else { y };
+    let era = if y >= 0 { y } else { y - 399 } / 400;
+    let yoe = y - era * 400;
+    let m = m as i64;
+    let doy = (153 * (if m > 2 { m - 3 } else { m + 9 }) + 2) / 5 + d as i64 - 1;
+    let doe = yoe * 365 + yoe / 4 - yoe / 100 + doy;
+    era * 146_097 + doe - 719_468
+}
+
+/// Inverse of [`days_from_civil`].
+fn civil_from_days(z: i64) -> (i64, u32, u32) {
+    let z = z + 719_468;
+    let era = if z >= 0 { z } else { z - 146_096 } / 146_097;
+    let doe = z - era * 146_097;
+    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
+    let y = yoe + era * 400;
+    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    let mp = (5 * doy + 2) / 153;
+    let d = (doy - (153 * mp + 2) / 5 + 1) as u32;
+    let m = if mp < 10 { mp + 3 } else { mp - 9 } as u32;
+    (if m <= 2 { y + 1 } else { y }, m, d)
+}
+
+fn days_in_month(y: i64, m: u32) -> u32 {
+    match m {
+        1 | 3 | 5 | 7 | 8 | 10 | 12 => 31,
+        4 | 6 | 9 | 11 => 30,
+        _ => {
+            if (y % 4 == 0 && y % 100 != 0) || y % 400 == 0 {
+                29
+            } else {
+                28
+            }
+        }
+    }
+}
+
+fn digits(b: &[u8]) -> Option<u32> {
+    let mut v: u32 = 0;
+    for &c in b {
+        if !c.is_ascii_digit() {
+            return None;
+        }
+        v = v * 10 + (c - b'0') as u32;
+    }
+    Some(v)
+}
+
+impl Timestamp {
+    pub const fn from_unix_nanos(ns: i64) -> Self {
+        Timestamp(ns)
+    }
+    pub const fn unix_nanos(self) -> i64 {
+        self.0
+    }
+    /// From seconds since the epoch, rounded to the nearest nanosecond.
+    pub fn from_unix_secs_f64(s: f64) -> Self {
+        Timestamp((s * 1e9).round() as i64)
+    }
+    pub fn unix_secs_f64(self) -> f64 {
+        // Split so that large epochs keep their sub-microsecond part.
+        (self.0.div_euclid(NANOS_PER_SEC)) as f64 + (self.0.rem_euclid(NANOS_PER_SEC)) as f64 * 1e-9
+    }
+    /// `self - earlier` in seconds.
+    pub fn secs_since(self, earlier: Timestamp) -> f64 {
+        (self.0 - earlier.0) as f64 * 1e-9
+    }
+    /// This instant moved by `s` seconds.
+    pub fn plus_secs(self, s: f64) -> Timestamp {
+        Timestamp(self.0 + (s * 1e9).round() as i64)
+    }
+    pub fn from_ymd_hms_nanos(y: i64, mo: u32, d: u32, h: u32, mi: u32, s: u32, ns: u32) -> Result<Self, TimeError> {
+        if !(1970..=9999).contains(&y) {
+            return Err(TimeError::OutOfSpan);
+        }
+        if !(1..=12).contains(&mo) || d == 0 || d > days_in_month(y, mo) || h > 23 || mi > 59 || s > 60 || ns >= 1_000_000_000 {
+            return Err(TimeError::FieldRange);
+        }
+        let days = days_from_civil(y, mo, d);
+        // A leap second (:60) is folded onto the next second, as Unix time does.
+        let secs = days * 86_400 + (h as i64) * 3600 + (mi as i64) * 60 + s as i64;
+        Ok(Timestamp(secs * NANOS_PER_SEC + ns as i64))
+    }
+
+    /// Midnight UTC of the given date.
+    pub fn from_date(y: i64, mo: u32, d: u32) -> Result<Self, TimeError> {
+        Self::from_ymd_hms_nanos(y, mo, d, 0, 0, 0, 0)
+    }
+
+    /// Parses `YYYY-MM-DD` into midnight UTC of that day.
+    pub fn parse_date(s: &str) -> Result<Self, TimeError> {
+        let b = s.as_bytes();
+        if b.len() != 10 || b[4] != b'-' || b[7] != b'-' {
+            return Err(TimeError::Syntax);
+        }
+        let y = digits(&b[0..4]).ok_or(TimeError::Syntax)? as i64;
+        let mo = digits(&b[5..7]).ok_or(TimeError::Syntax)?;
+        let d = digits(&b[8..10]).ok_or(TimeError::Syntax)?;
+        Self::from_date(y, mo, d)
+    }
+
+    /// Parses an RFC 3339 date-time. `T` or `t` or a space separates date
+    /// and time; the zone is `Z`, `z` or a numeric offset, which is applied
+    /// so the result is UTC. Up to nine fractional digits are kept; more
+    /// are accepted and truncated.
+    pub fn parse_rfc3339(s: &str) -> Result<Self, TimeError> {
+        let b = s.as_bytes();
+        if b.len() < 20 {
+            return Err(TimeError::Syntax);
+        }
+        if b[4] != b'-' || b[7] != b'-' || !matches!(b[10], b'T' | b't' | b' ') || b[13] != b':' || b[16] != b':' {
+            return Err(TimeError::Syntax);
+        }
+        let y = digits(&b[0..4]).ok_or(TimeError::Syntax)? as i64;
+        let mo = digits(&b[5..7]).ok_or(TimeError::Syntax)?;
+        let d = digits(&b[8..10]).ok_or(TimeError::Syntax)?;
+        let h = digits(&b[11..13]).ok_or(TimeError::Syntax)?;
+        let mi = digits(&b[14..16]).ok_or(TimeError::Syntax)?;
+        let sec = digits(&b[17..19]).ok_or(TimeError::Syntax)?;
+        let mut i = 19;
+        let mut ns: u32 = 0;
+        if b[i] == b'.' {
+            i += 1;
+            let start = i;
+            while i < b.len() && b[i].is_ascii_digit() {
+                if i - start < 9 {
+                    ns = ns * 10 + (b[i] - b'0') as u32;
+                }
+                i += 1;
+            }
+            let n = i - start;
+            if n == 0 {
+                return Err(TimeError::Syntax);
+            }
+            for _ in n..9 {
+                ns *= 10;
+            }
+        }
+        let offset_s: i64 = match b.get(i) {
+            Some(b'Z') | Some(b'z') if i + 1 == b.len() => 0,
+            Some(&sign @ (b'+' | b'-')) if i + 6 == b.len() && b[i + 3] == b':' => {
+                let oh = digits(&b[i + 1..i + 3]).ok_or(TimeError::Syntax)? as i64;
+                let om = digits(&b[i + 4..i + 6]).ok_or(TimeError::Syntax)? as i64;
+                if oh > 23 || om > 59 {
+                    return Err(TimeError::FieldRange);
+                }
+                let o = oh * 3600 + om * 60;
+                if sign == b'+' { o } else { -o }
+            }
+            _ => return Err(TimeError::Syntax),
+        };
+        let t = Self::from_ymd_hms_nanos(y, mo, d, h, mi, sec, ns)?;
+        Ok(Timestamp(t.0 - offset_s * NANOS_PER_SEC))
+    }
+
+    /// Appends the RFC 3339 form: `YYYY-MM-DDTHH:MM:SS[.f]Z`, with the
+    /// fraction in the fewest digits that represent it exactly.
+    pub fn write_rfc3339(self, out: &mut String) {
+        use std::fmt::Write;
+        let secs = self.0.div_euclid(NANOS_PER_SEC);
+        let ns = self.0.rem_euclid(NANOS_PER_SEC) as u32;
+        let days = secs.div_euclid(86_400);
+        let sod = secs.rem_euclid(86_400);
+        let (y, m, d) = civil_from_days(days);
+        let _ = write!(out, "{:04}-{:02}-{:02}T{:02}:{:02}:{:02}", y, m, d, sod / 3600, (sod / 60) % 60, sod % 60);
+        if ns != 0 {
+            let mut frac = ns;
+            let mut width = 9;
+            while frac % 10 == 0 {
+                frac /= 10;
+                width -= 1;
+            }
+            let _ = write!(out, ".{:0width$}", frac, width = width);
+        }
+        out.push('Z');
+    }
+
+    pub fn to_rfc3339(self) -> String {
+        let mut s = String::with_capacity(30);
+        self.write_rfc3339(&mut s);
+        s
+    }
+
+    /// Seconds since midnight UTC of this instant's day.
+    pub fn secs_of_day(self) -> f64 {
+        self.0.rem_euclid(86_400 * NANOS_PER_SEC) as f64 * 1e-9
+    }
+
+    /// Midnight UTC of this instant's day.
+    pub fn midnight(self) -> Timestamp {
+        Timestamp(self.0 - self.0.rem_euclid(86_400 * NANOS_PER_SEC))
+    }
+}
+
+impl fmt::Display for Timestamp {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(&self.to_rfc3339())
+    }
+}
+
+impl std::str::FromStr for Timestamp {
+    type Err = TimeError;
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        Self::parse_rfc3339(s)
+    }
+}
+
+impl serde::Serialize for Timestamp {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        s.serialize_str(&self.to_rfc3339())
+    }
+}
+
+impl<'de> serde::Deserialize<'de> for Timestamp {
+    fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        let s = <std::borrow::Cow<'de, str>>::deserialize(d)?;
+        Timestamp::parse_rfc3339(&s).map_err(serde::de::Error::custom)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn known_epochs() {
+        // Unix times of these instants are checked with GNU date
+        // (`date -u -d 2026-05-14T06:00:02Z +%s` gives 1778738402).
+        assert_eq!(Timestamp::parse_rfc3339("1970-01-01T00:00:00Z").unwrap().unix_nanos(), 0);
+        assert_eq!(Timestamp::parse_rfc3339("2026-05-14T06:00:02Z").unwrap().unix_nanos(), 1_778_738_402 * NANOS_PER_SEC);
+        // 2000-02-29 is a leap day (divisible by 400): 951782400 (GNU date).
+        assert_eq!(Timestamp::parse_rfc3339("2000-02-29T00:00:00Z").unwrap().unix_nanos(), 951_782_400 * NANOS_PER_SEC);
+        assert_eq!(Timestamp::parse_rfc3339("1900-02-28T00:00:00Z"), Err(TimeError::OutOfSpan));
+        assert_eq!(Timestamp::parse_rfc3339("2100-02-29T00:00:00Z"), Err(TimeError::FieldRange));
+    }
+
+    #[test]
+    fn fraction_and_offsets() {
+        let t = Timestamp::parse_rfc3339("2026-05-14T06:00:02.125Z").unwrap();
+        assert_eq!(t.unix_nanos() % NANOS_PER_SEC, 125_000_000);
+        assert_eq!(t.to_rfc3339(), "2026-05-14T06:00:02.125Z");
+        let u = Timestamp::parse_rfc3339("2026-05-14T08:00:02.125+02:00").unwrap();
+        assert_eq!(t, u);
+        let n = Timestamp::parse_rfc3339("2026-05-14T06:00:02.000000001Z").unwrap();
+        assert_eq!(n.to_rfc3339(), "2026-05-14T06:00:02.000000001Z");
+        assert_eq!(Timestamp::parse_rfc3339("2026-05-14T06:00:02.Z"), Err(TimeError::Syntax));
+        assert_eq!(Timestamp::parse_rfc3339("2026-05-14T06:00:02"), Err(TimeError::Syntax));
+        assert_eq!(Timestamp::parse_rfc3339("2026-13-14T06:00:02Z"), Err(TimeError::FieldRange));
+        assert_eq!(Timestamp::parse_rfc3339("2026-05-14T24:00:02Z"), Err(TimeError::FieldRange));
+        assert!(Timestamp::parse_rfc3339("２026-05-14T06:00:02Z").is_err());
+    }
+
+    #[test]
+    fn round_trip_brute_force_days() {
+        // Every day from 1970 to 2100 survives civil -> days -> civil.
+        for z in 0..(131 * 366) {
+            let (y, m, d) = civil_from_days(z);
+            assert_eq!(days_from_civil(y, m, d), z);
+            let t = Timestamp::from_date(y, m, d).unwrap().plus_secs(3723.5);
+            assert_eq!(Timestamp::parse_rfc3339(&t.to_rfc3339()).unwrap(), t);
+        }
+    }
+}
