@@ -1,7 +1,9 @@
 //! skerry: a streaming multi-target tracker for harbour and coastal
 //! surveillance.
 
+pub mod config;
 pub mod engine;
+pub mod feed;
 pub mod geo;
 pub mod stats;
 pub mod time;

@@ -1,0 +1,396 @@
+//! Settings: embedded defaults, then a TOML file, then `SKERRY__*`
+//! environment variables (CONTRACT.md §3).
+//!
+//! Loading checks every value and names the offending key
+//! (`sensors[1].range_sigma_m`), so a bad configuration stops start-up with
+//! a message an operator can act on.
+
+use crate::feed::{SensorKind, SensorTable};
+use serde::{Deserialize, Serialize};
+use std::collections::HashMap;
+use std::path::Path;
+
+/// The defaults every configuration starts from (all keys but the site
+/// and the sensors).
+pub const DEFAULTS_TOML: &str = include_str!("defaults.toml");
+
+/// An embedded configuration for trying skerry without writing one: the
+/// invented harbour of the demo feeds.
+pub const DEMO_TOML: &str = include_str!("../demo-feeds/demo-site.toml");
+
+#[derive(Debug, thiserror::Error)]
+pub enum ConfigError {
+    #[error("{file}: {message}")]
+    Load { file: String, message: String },
+    #[error("{file}: `{key}`: {message}")]
+    Invalid { file: String, key: String, message: String },
+}
+
+#[derive(Clone, Debug, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Config {
+    pub site: Site,
+    #[serde(default)]
+    pub sensors: Vec<SensorConfig>,
+    pub tracking: TrackingConfig,
+    pub feed: FeedConfig,
+    pub serve: ServeConfig,
+    #[serde(default)]
+    pub record: Option<RecordConfig>,
+}
+
+#[derive(Clone, Debug, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Site {
+    #[serde(default)]
+    pub name: String,
+    pub lat_deg: f64,
+    pub lon_deg: f64,
+    /// Ellipsoidal height of the site origin; the plane is tangent there.
+    #[serde(default)]
+    pub height_m: f64,
+}
+
+#[derive(Clone, Debug, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SensorConfig {
+    pub id: String,
+    pub kind: SensorKind,
+    pub lat_deg: Option<f64>,
+    pub lon_deg: Option<f64>,
+    /// Antenna height above the ellipsoid (taken as above sea level).
+    #[serde(default)]
+    pub height_m: f64,
+    pub range_sigma_m: Option<f64>,
+    pub bearing_sigma_deg: Option<f64>,
+    #[serde(default = "default_pd")]
+    pub detection_probability: f64,
+    #[serde(default = "default_clutter")]
+    pub clutter_per_scan: f64,
+    pub max_range_m: Option<f64>,
+    pub scan_period_s: Option<f64>,
+    /// Transponders: 1-sigma position error of a report.
+    pub position_sigma_m: Option<f64>,
+    /// ASTERIX data source identifier (CONTRACT.md §8).
+    pub asterix_sac: Option<u8>,
+    pub asterix_sic: Option<u8>,
+    /// Transponders: a UDP address for NMEA 0183 sentences (§8).
+    pub nmea_udp: Option<String>,
+    /// Source addresses allowed to send for this sensor (empty: any).
+    #[serde(default)]
+    pub allow_from: Vec<String>,
+}
+
+fn default_pd() -> f64 {
+    0.9
+}
+fn default_clutter() -> f64 {
+    10.0
+}
+
+/// Association method.
+#[derive(Copy, Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Association {
+    Gnn,
+    Jpda,
+}
+
+/// Motion model set.
+#[derive(Copy, Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum MotionChoice {
+    /// The vessel IMM: quiet straight running, manoeuvres, speed changes.
+    Imm,
+    /// A single nearly-constant-velocity model.
+    Cv,
+}
+
+#[derive(Clone, Debug, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct TrackingConfig {
+    pub association: Association,
+    pub motion: MotionChoice,
+    /// Probability that a true plot falls inside its track's gate.
+    pub gate_probability: f64,
+    /// A tentative track is confirmed after `confirm_hits` hits in its
+    /// last `confirm_looks` looks.
+    pub confirm_hits: u32,
+    pub confirm_looks: u32,
+    /// A firm track ends with fewer than `end_hits` hits in its last
+    /// `end_looks` looks.
+    pub end_hits: u32,
+    pub end_looks: u32,
+    /// A track with no update for this long while outside every sensor's
+    /// coverage ends (s).
+    pub max_silence_s: f64,
+    /// A track that holds a transponder identity is kept this long without
+    /// an update (s): reports at anchor come every 3 minutes.
+    pub identified_silence_s: f64,
+    /// 1-sigma speed of a new track on each axis (m/s).
+    pub init_speed_sigma_mps: f64,
+    /// Plots faster than this from a track's last plot are not associated
+    /// with a tentative track (kn).
+    pub max_speed_kn: f64,
+    /// Expected new vessels per km² per scan, for the cost of starting a
+    /// track.
+    pub new_track_density_per_km2: f64,
+    /// IMM: accel PSD of the quiet straight-running model (m²/s³).
+    pub quiet_accel_psd: f64,
+    /// IMM: accel PSD of the manoeuvring models (m²/s³).
+    pub manoeuvre_accel_psd: f64,
+    /// IMM: turn-rate PSD of the coordinated-turn model (rad²/s³).
+    pub turn_rate_psd: f64,
+    /// IMM: mean time spent in each model before switching (s).
+    pub model_sojourn_s: [f64; 3],
+    /// JPDA: clusters with more joint events than this use the
+    /// approximation.
+    pub jpda_max_events: u64,
+    /// A report whose identity a track holds must fall within this many
+    /// metres of it, or it raises an identity conflict.
+    pub identity_gate_m: f64,
+}
+
+#[derive(Clone, Debug, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct FeedConfig {
+    /// Records further than this from the feed's median time (offline) or
+    /// the clock (live) are rejected as implausible (s).
+    pub max_time_offset_s: f64,
+    /// Longest accepted line or datagram (bytes).
+    pub max_record_bytes: usize,
+}
+
+#[derive(Clone, Debug, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ServeConfig {
+    pub udp_addr: String,
+    pub grpc_addr: String,
+    pub http_addr: String,
+    /// ASTERIX data blocks (CONTRACT.md §8); absent: not listened for.
+    #[serde(default)]
+    pub asterix_udp: Option<String>,
+    /// Further daemon settings, owned by the daemon module.
+    #[serde(flatten)]
+    pub more: HashMap<String, toml::Value>,
+}
+
+#[derive(Clone, Debug, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RecordConfig {
+    pub dir: String,
+    #[serde(flatten)]
+    pub more: HashMap<String, toml::Value>,
+}
+
+impl Config {
+    /// Loads the defaults, then `file` (if any), then the environment
+    /// overrides in `env` (pairs like `SKERRY__SERVE__UDP_ADDR`).
+    pub fn load(file: Option<&Path>, env: &HashMap<String, String>) -> Result<Config, ConfigError> {
+        let name = file.map(|p| p.display().to_string()).unwrap_or_else(|| "(embedded demo configuration)".into());
+        let text = match file {
+            Some(p) => std::fs::read_to_string(p).map_err(|e| ConfigError::Load { file: name.clone(), message: format!("cannot read: {e}") })?,
+            None => DEMO_TOML.to_string(),
+        };
+        Self::from_toml_str(&text, &name, env)
+    }
+
+    /// Reads the process environment's `SKERRY__*` variables.
+    pub fn env_overrides() -> HashMap<String, String> {
+        std::env::vars().filter(|(k, _)| k.starts_with("SKERRY__")).collect()
+    }
+
+    pub fn from_toml_str(text: &str, name: &str, env: &HashMap<String, String>) -> Result<Config, ConfigError> {
+        use config::{Environment, File, FileFormat};
+        // Parse the file on its own first: the toml crate's errors carry
+        // the line and column, which the layered loader loses.
+        if let Err(e) = toml::from_str::<toml::Table>(text) {
+            return Err(ConfigError::Load { file: name.into(), message: e.to_string().trim().to_string() });
+        }
+        let built = config::Config::builder()
+            .add_source(File::from_str(DEFAULTS_TOML, FileFormat::Toml))
+            .add_source(File::from_str(text, FileFormat::Toml))
+            .add_source(Environment::with_prefix("SKERRY").prefix_separator("__").separator("__").try_parsing(true).source(Some(env.clone())))
+            .build()
+            .map_err(|e| ConfigError::Load { file: name.into(), message: e.to_string() })?;
+        let cfg: Config = built.try_deserialize().map_err(|e| ConfigError::Load { file: name.into(), message: e.to_string() })?;
+        cfg.validate().map_err(|(key, message)| ConfigError::Invalid { file: name.into(), key, message })?;
+        Ok(cfg)
+    }
+
+    /// Range and consistency checks; the error names the key.
+    pub fn validate(&self) -> Result<(), (String, String)> {
+        fn bad(key: impl Into<String>, msg: impl Into<String>) -> Result<(), (String, String)> {
+            Err((key.into(), msg.into()))
+        }
+        let lat_ok = |v: f64| v.is_finite() && (-90.0..=90.0).contains(&v);
+        let lon_ok = |v: f64| v.is_finite() && (-180.0..=180.0).contains(&v);
+        if !lat_ok(self.site.lat_deg) {
+            return bad("site.lat_deg", "must be a latitude in [-90, 90]");
+        }
+        if !lon_ok(self.site.lon_deg) {
+            return bad("site.lon_deg", "must be a longitude in [-180, 180]");
+        }
+        if self.sensors.len() > u16::MAX as usize {
+            return bad("sensors", "too many sensors");
+        }
+        let mut seen = std::collections::HashSet::new();
+        for (i, s) in self.sensors.iter().enumerate() {
+            let k = |f: &str| format!("sensors[{i}].{f}");
+            if s.id.is_empty() {
+                return bad(k("id"), "must not be empty");
+            }
+            if !seen.insert(s.id.as_str()) {
+                return bad(k("id"), format!("`{}` is used by an earlier sensor", s.id));
+            }
+            let positive = |v: Option<f64>, f: &str| -> Result<(), (String, String)> {
+                match v {
+                    None => bad(k(f), format!("is required for a {} sensor", s.kind.as_str())),
+                    Some(x) if !(x.is_finite() && x > 0.0) => bad(k(f), format!("must be a positive number (got {x})")),
+                    _ => Ok(()),
+                }
+            };
+            match s.kind {
+                SensorKind::Radar => {
+                    match s.lat_deg {
+                        Some(v) if lat_ok(v) => {}
+                        Some(_) => return bad(k("lat_deg"), "must be a latitude in [-90, 90]"),
+                        None => return bad(k("lat_deg"), "is required for a radar"),
+                    }
+                    match s.lon_deg {
+                        Some(v) if lon_ok(v) => {}
+                        Some(_) => return bad(k("lon_deg"), "must be a longitude in [-180, 180]"),
+                        None => return bad(k("lon_deg"), "is required for a radar"),
+                    }
+                    positive(s.range_sigma_m, "range_sigma_m")?;
+                    positive(s.bearing_sigma_deg, "bearing_sigma_deg")?;
+                    positive(s.max_range_m, "max_range_m")?;
+                    positive(s.scan_period_s, "scan_period_s")?;
+                    if !(s.height_m.is_finite() && (-100.0..10_000.0).contains(&s.height_m)) {
+                        return bad(k("height_m"), "must be between -100 and 10000 m");
+                    }
+                    if !(s.detection_probability > 0.0 && s.detection_probability < 1.0) {
+                        return bad(k("detection_probability"), "must be in (0, 1)");
+                    }
+                    if !(s.clutter_per_scan.is_finite() && s.clutter_per_scan >= 0.0) {
+                        return bad(k("clutter_per_scan"), "must be ≥ 0");
+                    }
+                }
+                SensorKind::Transponder => positive(s.position_sigma_m, "position_sigma_m")?,
+            }
+        }
+        let t = &self.tracking;
+        if !(t.gate_probability > 0.0 && t.gate_probability < 1.0) {
+            return bad("tracking.gate_probability", "must be in (0, 1)");
+        }
+        if t.confirm_hits == 0 || t.confirm_hits > t.confirm_looks || t.confirm_looks > 32 {
+            return bad("tracking.confirm_hits", "need 1 ≤ confirm_hits ≤ confirm_looks ≤ 32");
+        }
+        if t.end_hits == 0 || t.end_hits > t.end_looks || t.end_looks > 32 {
+            return bad("tracking.end_hits", "need 1 ≤ end_hits ≤ end_looks ≤ 32");
+        }
+        for (key, v) in [
+            ("tracking.max_silence_s", t.max_silence_s),
+            ("tracking.identified_silence_s", t.identified_silence_s),
+            ("tracking.init_speed_sigma_mps", t.init_speed_sigma_mps),
+            ("tracking.max_speed_kn", t.max_speed_kn),
+            ("tracking.quiet_accel_psd", t.quiet_accel_psd),
+            ("tracking.manoeuvre_accel_psd", t.manoeuvre_accel_psd),
+            ("tracking.turn_rate_psd", t.turn_rate_psd),
+            ("tracking.identity_gate_m", t.identity_gate_m),
+            ("feed.max_time_offset_s", self.feed.max_time_offset_s),
+        ] {
+            if !(v.is_finite() && v > 0.0) {
+                return bad(key, format!("must be a positive number (got {v})"));
+            }
+        }
+        if !(t.new_track_density_per_km2.is_finite() && t.new_track_density_per_km2 >= 0.0) {
+            return bad("tracking.new_track_density_per_km2", "must be ≥ 0");
+        }
+        if t.model_sojourn_s.iter().any(|v| !(v.is_finite() && *v > 0.0)) {
+            return bad("tracking.model_sojourn_s", "each must be a positive number of seconds");
+        }
+        Ok(())
+    }
+
+    pub fn sensor_table(&self) -> SensorTable {
+        SensorTable::new(self.sensors.iter().map(|s| (s.id.as_str(), s.kind)))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn load(text: &str) -> Result<Config, ConfigError> {
+        Config::from_toml_str(text, "test.toml", &HashMap::new())
+    }
+
+    const GOOD: &str = r#"
+[site]
+name = "Test"
+lat_deg = 56.45
+lon_deg = 7.35
+
+[[sensors]]
+id = "north-mast"
+kind = "radar"
+lat_deg = 56.462
+lon_deg = 7.343
+height_m = 32.0
+range_sigma_m = 12.0
+bearing_sigma_deg = 0.3
+detection_probability = 0.9
+clutter_per_scan = 40.0
+max_range_m = 18000.0
+scan_period_s = 2.5
+
+[[sensors]]
+id = "shore-transponders"
+kind = "transponder"
+position_sigma_m = 10.0
+
+[tracking]
+association = "gnn"
+"#;
+
+    #[test]
+    fn contract_example_loads_with_defaults() {
+        let c = load(GOOD).unwrap();
+        assert_eq!(c.sensors.len(), 2);
+        assert_eq!(c.tracking.association, Association::Gnn);
+        assert_eq!(c.tracking.confirm_hits, 3);
+        assert_eq!(c.serve.udp_addr, "127.0.0.1:4100");
+    }
+
+    #[test]
+    fn errors_name_the_key() {
+        let e = load(&GOOD.replace("range_sigma_m = 12.0", "range_sigma_m = -12.0")).unwrap_err().to_string();
+        assert!(e.contains("sensors[0].range_sigma_m"), "{e}");
+        let e = load(&GOOD.replace("position_sigma_m = 10.0", "")).unwrap_err().to_string();
+        assert!(e.contains("sensors[1].position_sigma_m"), "{e}");
+        let e = load(&GOOD.replace("association = \"gnn\"", "association = \"nearest\"")).unwrap_err().to_string();
+        assert!(e.contains("association") || e.contains("nearest"), "{e}");
+        let e = load(&GOOD.replace("scan_period_s = 2.5", "scan_period_s = 2.5\nscan_perod_s = 3")).unwrap_err().to_string();
+        assert!(e.contains("scan_perod_s"), "{e}");
+        let e = load("[site\nlat_deg = 1").unwrap_err().to_string();
+        assert!(e.contains("line 1"), "{e}");
+        let e = load(&GOOD.replace("kind = \"transponder\"", "kind = \"radar\"\nlat_deg = 56.4")).unwrap_err().to_string();
+        assert!(e.contains("sensors[1].lon_deg"), "{e}");
+    }
+
+    #[test]
+    fn environment_overrides_file() {
+        let mut env = HashMap::new();
+        env.insert("SKERRY__SERVE__UDP_ADDR".to_string(), "127.0.0.1:5000".to_string());
+        env.insert("SKERRY__TRACKING__CONFIRM_HITS".to_string(), "2".to_string());
+        let c = Config::from_toml_str(GOOD, "t", &env).unwrap();
+        assert_eq!(c.serve.udp_addr, "127.0.0.1:5000");
+        assert_eq!(c.tracking.confirm_hits, 2);
+    }
+
+    #[test]
+    fn embedded_demo_config_is_valid() {
+        Config::load(None, &HashMap::new()).unwrap();
+    }
+}

@@ -1,0 +1,317 @@
+//! The record vocabulary (CONTRACT.md §1, §2, §6), validation, and the
+//! codecs.
+//!
+//! Feed records name their sensor by its configured id; once decoded, a
+//! record carries the sensor's index in the configuration
+//! ([`SensorId`]), so the engine never compares strings on its hot path.
+
+pub mod json;
+pub mod screen;
+pub mod tracks;
+
+use crate::time::Timestamp;
+use std::collections::HashMap;
+use std::sync::Arc;
+
+pub use json::{decode_line, encode_record};
+pub use screen::Screen;
+pub use tracks::{TrackRecord, TrackStatus, TruthRecord};
+
+/// Index of a sensor in the configuration's `[[sensors]]` list.
+pub type SensorId = u16;
+
+/// What kind of sensor a configured id is.
+#[derive(Copy, Clone, Debug, PartialEq, Eq, Hash, serde::Serialize, serde::Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum SensorKind {
+    Radar,
+    Transponder,
+}
+
+impl SensorKind {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            SensorKind::Radar => "radar",
+            SensorKind::Transponder => "transponder",
+        }
+    }
+}
+
+/// Sensor names and kinds, in configuration order, for decoding and for
+/// writing names back out.
+#[derive(Clone, Debug, Default)]
+pub struct SensorTable {
+    names: Vec<Arc<str>>,
+    kinds: Vec<SensorKind>,
+    index: HashMap<Arc<str>, SensorId>,
+}
+
+impl SensorTable {
+    pub fn new<'a>(sensors: impl IntoIterator<Item = (&'a str, SensorKind)>) -> Self {
+        let mut t = SensorTable::default();
+        for (name, kind) in sensors {
+            let name: Arc<str> = Arc::from(name);
+            let id = t.names.len() as SensorId;
+            t.index.entry(name.clone()).or_insert(id);
+            t.names.push(name);
+            t.kinds.push(kind);
+        }
+        t
+    }
+    pub fn lookup(&self, name: &str) -> Option<SensorId> {
+        self.index.get(name).copied()
+    }
+    pub fn name(&self, id: SensorId) -> &str {
+        self.names.get(id as usize).map(|s| &**s).unwrap_or("?")
+    }
+    pub fn kind(&self, id: SensorId) -> Option<SensorKind> {
+        self.kinds.get(id as usize).copied()
+    }
+    pub fn len(&self) -> usize {
+        self.names.len()
+    }
+    pub fn is_empty(&self) -> bool {
+        self.names.is_empty()
+    }
+    pub fn ids(&self) -> impl Iterator<Item = SensorId> + '_ {
+        (0..self.names.len()).map(|i| i as SensorId)
+    }
+}
+
+/// One radar plot.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Detection {
+    pub sensor: SensorId,
+    pub time: Timestamp,
+    pub scan: Option<u64>,
+    pub range_m: f64,
+    pub bearing_deg: f64,
+    pub radial_speed_mps: Option<f64>,
+    pub snr_db: Option<f64>,
+}
+
+/// A radar finished looking at a sector (absent: the full circle).
+#[derive(Clone, Debug, PartialEq)]
+pub struct ScanEnd {
+    pub sensor: SensorId,
+    pub time: Timestamp,
+    pub scan: u64,
+    pub sector_deg: Option<[f64; 2]>,
+}
+
+/// A cooperative position report.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Report {
+    pub sensor: SensorId,
+    pub time: Timestamp,
+    pub id: Arc<str>,
+    pub lat_deg: f64,
+    pub lon_deg: f64,
+    pub sog_kn: Option<f64>,
+    pub cog_deg: Option<f64>,
+    pub heading_deg: Option<f64>,
+}
+
+/// A validated feed record.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Record {
+    Detection(Detection),
+    ScanEnd(ScanEnd),
+    Report(Report),
+}
+
+impl Record {
+    pub fn time(&self) -> Timestamp {
+        match self {
+            Record::Detection(d) => d.time,
+            Record::ScanEnd(s) => s.time,
+            Record::Report(r) => r.time,
+        }
+    }
+    pub fn sensor(&self) -> SensorId {
+        match self {
+            Record::Detection(d) => d.sensor,
+            Record::ScanEnd(s) => s.sensor,
+            Record::Report(r) => r.sensor,
+        }
+    }
+    /// The contract's `type` string.
+    pub fn type_name(&self) -> &'static str {
+        match self {
+            Record::Detection(_) => "detection",
+            Record::ScanEnd(_) => "scan_end",
+            Record::Report(_) => "report",
+        }
+    }
+    /// A hash of the whole content, for duplicate detection. Uses a fixed
+    /// hasher so that it is the same in every run.
+    pub fn content_hash(&self) -> u64 {
+        use std::hash::{Hash, Hasher};
+        let mut h = std::hash::DefaultHasher::new();
+        let f = |h: &mut std::hash::DefaultHasher, x: f64| x.to_bits().hash(h);
+        let o = |h: &mut std::hash::DefaultHasher, x: Option<f64>| x.map(f64::to_bits).hash(h);
+        match self {
+            Record::Detection(d) => {
+                0u8.hash(&mut h);
+                d.sensor.hash(&mut h);
+                d.time.hash(&mut h);
+                d.scan.hash(&mut h);
+                f(&mut h, d.range_m);
+                f(&mut h, d.bearing_deg);
+                o(&mut h, d.radial_speed_mps);
+                o(&mut h, d.snr_db);
+            }
+            Record::ScanEnd(s) => {
+                1u8.hash(&mut h);
+                s.sensor.hash(&mut h);
+                s.time.hash(&mut h);
+                s.scan.hash(&mut h);
+                s.sector_deg.map(|[a, b]| (a.to_bits(), b.to_bits())).hash(&mut h);
+            }
+            Record::Report(r) => {
+                2u8.hash(&mut h);
+                r.sensor.hash(&mut h);
+                r.time.hash(&mut h);
+                r.id.hash(&mut h);
+                f(&mut h, r.lat_deg);
+                f(&mut h, r.lon_deg);
+                o(&mut h, r.sog_kn);
+                o(&mut h, r.cog_deg);
+                o(&mut h, r.heading_deg);
+            }
+        }
+        h.finish()
+    }
+}
+
+/// Why a record was rejected. Every variant has a stable snake_case key
+/// ([`RejectReason::key`]) used in counters and metrics.
+#[derive(Clone, Debug, PartialEq, Eq, Hash, PartialOrd, Ord)]
+pub enum RejectReason {
+    /// Not valid UTF-8.
+    BadUtf8,
+    /// Not a JSON object.
+    BadJson,
+    /// `type` is not one skerry knows.
+    UnknownType,
+    MissingField(&'static str),
+    WrongType(&'static str),
+    NonFinite(&'static str),
+    OutOfRange(&'static str),
+    UnknownSensor,
+    WrongSensorKind,
+    BadTime,
+    Duplicate,
+    /// Far from the rest of the feed (offline) or from the clock (live).
+    ImplausibleTime,
+    /// Arrived after records later than it were already released.
+    Late,
+    /// Longer than the configured maximum (a datagram or a line).
+    Oversize,
+}
+
+impl RejectReason {
+    pub fn key(&self) -> &'static str {
+        match self {
+            RejectReason::BadUtf8 => "bad_utf8",
+            RejectReason::BadJson => "bad_json",
+            RejectReason::UnknownType => "unknown_type",
+            RejectReason::MissingField(_) => "missing_field",
+            RejectReason::WrongType(_) => "wrong_type",
+            RejectReason::NonFinite(_) => "non_finite",
+            RejectReason::OutOfRange(_) => "out_of_range",
+            RejectReason::UnknownSensor => "unknown_sensor",
+            RejectReason::WrongSensorKind => "wrong_sensor_kind",
+            RejectReason::BadTime => "bad_time",
+            RejectReason::Duplicate => "duplicate",
+            RejectReason::ImplausibleTime => "implausible_time",
+            RejectReason::Late => "late",
+            RejectReason::Oversize => "oversize",
+        }
+    }
+    /// Every key, in a fixed order (for tables and metrics).
+    pub const ALL_KEYS: [&'static str; 14] = [
+        "bad_utf8",
+        "bad_json",
+        "unknown_type",
+        "missing_field",
+        "wrong_type",
+        "non_finite",
+        "out_of_range",
+        "unknown_sensor",
+        "wrong_sensor_kind",
+        "bad_time",
+        "duplicate",
+        "implausible_time",
+        "late",
+        "oversize",
+    ];
+}
+
+impl std::fmt::Display for RejectReason {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            RejectReason::MissingField(k) => write!(f, "missing field `{k}`"),
+            RejectReason::WrongType(k) => write!(f, "field `{k}` has the wrong type"),
+            RejectReason::NonFinite(k) => write!(f, "field `{k}` is not a finite number"),
+            RejectReason::OutOfRange(k) => write!(f, "field `{k}` is out of range"),
+            RejectReason::BadUtf8 => f.write_str("not valid UTF-8"),
+            RejectReason::BadJson => f.write_str("not a JSON object"),
+            RejectReason::UnknownType => f.write_str("unknown record type"),
+            RejectReason::UnknownSensor => f.write_str("sensor is not configured"),
+            RejectReason::WrongSensorKind => f.write_str("sensor is of the wrong kind for this record"),
+            RejectReason::BadTime => f.write_str("`time` is not an RFC 3339 UTC time"),
+            RejectReason::Duplicate => f.write_str("exact duplicate of an earlier record"),
+            RejectReason::ImplausibleTime => f.write_str("time is implausibly far from the rest of the feed"),
+            RejectReason::Late => f.write_str("arrived after later records were released"),
+            RejectReason::Oversize => f.write_str("larger than the configured maximum"),
+        }
+    }
+}
+
+/// A rejected record: the reason, and the sensor it named if that sensor
+/// is configured.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Reject {
+    pub reason: RejectReason,
+    pub sensor: Option<SensorId>,
+}
+
+/// Counts of accepted and rejected records per sensor and reason.
+/// Records whose sensor is not known are counted under `None`.
+#[derive(Clone, Debug, Default)]
+pub struct FeedCounts {
+    pub accepted: std::collections::BTreeMap<Option<SensorId>, u64>,
+    pub rejected: std::collections::BTreeMap<(Option<SensorId>, &'static str), u64>,
+}
+
+impl FeedCounts {
+    pub fn accept(&mut self, sensor: SensorId) {
+        *self.accepted.entry(Some(sensor)).or_default() += 1;
+    }
+    pub fn reject(&mut self, r: &Reject) {
+        *self.rejected.entry((r.sensor, r.reason.key())).or_default() += 1;
+    }
+    pub fn total_accepted(&self) -> u64 {
+        self.accepted.values().sum()
+    }
+    pub fn total_rejected(&self) -> u64 {
+        self.rejected.values().sum()
+    }
+    /// A plain-text table, one line per sensor and reason.
+    pub fn table(&self, sensors: &SensorTable) -> String {
+        use std::fmt::Write;
+        let name = |s: &Option<SensorId>| s.map(|i| sensors.name(i).to_string()).unwrap_or_else(|| "(unknown sensor)".into());
+        let mut out = String::new();
+        let _ = writeln!(out, "{:<24} {:<20} {:>10}", "sensor", "outcome", "records");
+        for (s, n) in &self.accepted {
+            let _ = writeln!(out, "{:<24} {:<20} {:>10}", name(s), "accepted", n);
+        }
+        for ((s, k), n) in &self.rejected {
+            let _ = writeln!(out, "{:<24} {:<20} {:>10}", name(s), format!("rejected:{k}"), n);
+        }
+        let _ = writeln!(out, "{:<24} {:<20} {:>10}", "total", "accepted", self.total_accepted());
+        let _ = writeln!(out, "{:<24} {:<20} {:>10}", "total", "rejected", self.total_rejected());
+        out
+    }
+}

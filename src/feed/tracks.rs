@@ -1,0 +1,252 @@
+//! Track records (CONTRACT.md §2) and truth records (§6).
+//!
+//! Track records are written by hand, with fixed decimals per field, so
+//! that the output is the same to the byte in every run and short:
+//! latitude and longitude to 1e-7° (about 1 cm), plane positions to 1 cm,
+//! velocities to 1 mm/s, covariances to 0.01 m².
+
+use crate::time::Timestamp;
+use serde::{Deserialize, Serialize};
+use std::fmt::Write;
+use std::sync::Arc;
+
+#[derive(Copy, Clone, Debug, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum TrackStatus {
+    Tentative,
+    Confirmed,
+    Coasting,
+    Ended,
+}
+
+impl TrackStatus {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            TrackStatus::Tentative => "tentative",
+            TrackStatus::Confirmed => "confirmed",
+            TrackStatus::Coasting => "coasting",
+            TrackStatus::Ended => "ended",
+        }
+    }
+    /// Confirmed or coasting: the firm picture.
+    pub fn is_firm(self) -> bool {
+        matches!(self, TrackStatus::Confirmed | TrackStatus::Coasting)
+    }
+}
+
+/// One track record.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct TrackRecord {
+    pub time: Timestamp,
+    pub track: u64,
+    pub status: TrackStatus,
+    pub lat_deg: f64,
+    pub lon_deg: f64,
+    pub east_m: f64,
+    pub north_m: f64,
+    pub vel_east_mps: f64,
+    pub vel_north_mps: f64,
+    pub speed_kn: f64,
+    pub course_deg: f64,
+    pub pos_cov_m2: [[f64; 2]; 2],
+    pub sensors: Vec<Arc<str>>,
+    pub identity: Option<Arc<str>>,
+}
+
+/// Metres per second in one knot (1852 m per hour, by definition of the
+/// international nautical mile).
+pub const MPS_PER_KNOT: f64 = 1852.0 / 3600.0;
+
+/// Speed (kn) and course over ground (degrees clockwise from north, in
+/// [0, 360)) of a velocity.
+pub fn speed_course(vel_east: f64, vel_north: f64) -> (f64, f64) {
+    let speed = vel_east.hypot(vel_north) / MPS_PER_KNOT;
+    let mut course = vel_east.atan2(vel_north).to_degrees();
+    if course < 0.0 {
+        course += 360.0;
+    }
+    if course >= 360.0 {
+        course -= 360.0;
+    }
+    (speed, course)
+}
+
+/// Writes `v` with `d` decimals, never as `-0.00`.
+fn fixed(out: &mut String, v: f64, d: usize) {
+    let start = out.len();
+    let _ = write!(out, "{:.*}", d, v);
+    if out[start..].starts_with('-') && out[start + 1..].bytes().all(|c| c == b'0' || c == b'.') {
+        out.remove(start);
+    }
+}
+
+impl TrackRecord {
+    /// Appends the JSON line (without the newline).
+    pub fn write_json(&self, out: &mut String) {
+        out.push_str("{\"type\":\"track\",\"time\":\"");
+        self.time.write_rfc3339(out);
+        let _ = write!(out, "\",\"track\":{},\"status\":\"{}\",\"lat_deg\":", self.track, self.status.as_str());
+        fixed(out, self.lat_deg, 7);
+        out.push_str(",\"lon_deg\":");
+        fixed(out, self.lon_deg, 7);
+        out.push_str(",\"east_m\":");
+        fixed(out, self.east_m, 2);
+        out.push_str(",\"north_m\":");
+        fixed(out, self.north_m, 2);
+        out.push_str(",\"vel_east_mps\":");
+        fixed(out, self.vel_east_mps, 3);
+        out.push_str(",\"vel_north_mps\":");
+        fixed(out, self.vel_north_mps, 3);
+        out.push_str(",\"speed_kn\":");
+        fixed(out, self.speed_kn, 2);
+        out.push_str(",\"course_deg\":");
+        // Rounding may carry 359.995 up to 360.00: keep the contract's [0, 360).
+        let c = (self.course_deg * 100.0).round() / 100.0;
+        fixed(out, if c >= 360.0 { 0.0 } else { c }, 2);
+        out.push_str(",\"pos_cov_m2\":[[");
+        fixed(out, self.pos_cov_m2[0][0], 2);
+        out.push(',');
+        fixed(out, self.pos_cov_m2[0][1], 2);
+        out.push_str("],[");
+        fixed(out, self.pos_cov_m2[1][0], 2);
+        out.push(',');
+        fixed(out, self.pos_cov_m2[1][1], 2);
+        out.push_str("]],\"sensors\":[");
+        for (i, s) in self.sensors.iter().enumerate() {
+            if i > 0 {
+                out.push(',');
+            }
+            let _ = write!(out, "{}", serde_json::Value::String(s.to_string()));
+        }
+        out.push_str("],\"identity\":");
+        match &self.identity {
+            Some(id) => {
+                let _ = write!(out, "{}", serde_json::Value::String(id.to_string()));
+            }
+            None => out.push_str("null"),
+        }
+        out.push('}');
+    }
+
+    pub fn to_json(&self) -> String {
+        let mut s = String::with_capacity(320);
+        self.write_json(&mut s);
+        s
+    }
+
+    /// Reads a track line; `None` for a line of another `type`.
+    pub fn from_json(line: &str) -> Result<Option<TrackRecord>, serde_json::Error> {
+        #[derive(Deserialize)]
+        struct Probe<'a> {
+            #[serde(rename = "type", borrow)]
+            kind: std::borrow::Cow<'a, str>,
+        }
+        let p: Probe = serde_json::from_str(line)?;
+        if p.kind != "track" {
+            return Ok(None);
+        }
+        serde_json::from_str(line).map(Some)
+    }
+}
+
+/// A truth record: where a vessel really was.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct TruthRecord {
+    pub time: Timestamp,
+    /// The vessel's own label (a string or an integer in the file).
+    pub vessel: VesselLabel,
+    pub lat_deg: f64,
+    pub lon_deg: f64,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub vel_east_mps: Option<f64>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub vel_north_mps: Option<f64>,
+}
+
+#[derive(Clone, Debug, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
+#[serde(untagged)]
+pub enum VesselLabel {
+    Number(i64),
+    Text(String),
+}
+
+impl std::fmt::Display for VesselLabel {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            VesselLabel::Number(n) => write!(f, "{n}"),
+            VesselLabel::Text(s) => f.write_str(s),
+        }
+    }
+}
+
+impl TruthRecord {
+    pub fn to_json(&self) -> String {
+        #[derive(Serialize)]
+        struct Out<'a> {
+            #[serde(rename = "type")]
+            kind: &'static str,
+            #[serde(flatten)]
+            rec: &'a TruthRecord,
+        }
+        serde_json::to_string(&Out { kind: "truth", rec: self }).unwrap_or_default()
+    }
+    /// Reads a truth line; `None` for a line of another `type`.
+    pub fn from_json(line: &str) -> Result<Option<TruthRecord>, serde_json::Error> {
+        let v: serde_json::Value = serde_json::from_str(line)?;
+        if v.get("type").and_then(|t| t.as_str()) != Some("truth") {
+            return Ok(None);
+        }
+        serde_json::from_value(v).map(Some)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn track_line_round_trips_and_is_fixed_precision() {
+        let r = TrackRecord {
+            time: Timestamp::parse_rfc3339("2026-05-14T06:00:02.125Z").unwrap(),
+            track: 12,
+            status: TrackStatus::Confirmed,
+            lat_deg: 56.4512345678,
+            lon_deg: 7.35,
+            east_m: -0.001,
+            north_m: 1234.5678,
+            vel_east_mps: 3.0,
+            vel_north_mps: -4.0,
+            speed_kn: 9.719,
+            course_deg: 143.13,
+            pos_cov_m2: [[100.0, 2.5], [2.5, 80.0]],
+            sensors: vec!["north-mast".into()],
+            identity: None,
+        };
+        let s = r.to_json();
+        assert!(s.contains("\"east_m\":0.00,"), "{s}");
+        assert!(s.contains("\"lat_deg\":56.4512346,"), "{s}");
+        let back = TrackRecord::from_json(&s).unwrap().unwrap();
+        assert_eq!(back.track, 12);
+        assert_eq!(back.status, TrackStatus::Confirmed);
+        assert_eq!(back.sensors, r.sensors);
+    }
+
+    #[test]
+    fn speed_and_course() {
+        // 1 kn = 1852/3600 m/s (definition of the nautical mile).
+        let (s, c) = speed_course(0.0, 1852.0 / 3600.0);
+        assert!((s - 1.0).abs() < 1e-12 && c == 0.0);
+        let (_, c) = speed_course(-1.0, 0.0);
+        assert!((c - 270.0).abs() < 1e-12);
+        let (_, c) = speed_course(1.0, -1.0);
+        assert!((c - 135.0).abs() < 1e-12);
+    }
+
+    #[test]
+    fn truth_labels() {
+        let a = TruthRecord::from_json(r#"{"type":"truth","time":"2026-05-14T06:00:00Z","vessel":3,"lat_deg":56.0,"lon_deg":7.0}"#).unwrap().unwrap();
+        assert_eq!(a.vessel, VesselLabel::Number(3));
+        let b = TruthRecord::from_json(&a.to_json()).unwrap().unwrap();
+        assert_eq!(a, b);
+    }
+}
