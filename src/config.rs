@@ -129,9 +129,6 @@ pub struct TrackingConfig {
     pub identified_silence_s: f64,
     /// 1-sigma speed of a new track on each axis (m/s).
     pub init_speed_sigma_mps: f64,
-    /// Plots faster than this from a track's last plot are not associated
-    /// with a tentative track (kn).
-    pub max_speed_kn: f64,
     /// Expected new vessels per km² per scan, for the cost of starting a
     /// track.
     pub new_track_density_per_km2: f64,
@@ -293,7 +290,6 @@ impl Config {
             ("tracking.max_silence_s", t.max_silence_s),
             ("tracking.identified_silence_s", t.identified_silence_s),
             ("tracking.init_speed_sigma_mps", t.init_speed_sigma_mps),
-            ("tracking.max_speed_kn", t.max_speed_kn),
             ("tracking.quiet_accel_psd", t.quiet_accel_psd),
             ("tracking.manoeuvre_accel_psd", t.manoeuvre_accel_psd),
             ("tracking.turn_rate_psd", t.turn_rate_psd),

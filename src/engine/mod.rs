@@ -11,15 +11,44 @@
 //!   `now` and no record earlier than `now` will follow;
 //! - [`Engine::finish`] at the end of a feed, to process what is held back;
 //! - [`Engine::picture`]: the latest record of every live track.
+//!
+//! ## How a scan is processed
+//! Plots of one radar are gathered into small batches: consecutive plots of
+//! the same sensor within 1/16 of its scan period (a sector of about 22°).
+//! A batch closes when a record of another sensor or a later time arrives,
+//! on the sensor's `scan_end`, or when [`Engine::advance`] passes its end.
+//! Each batch is associated by global nearest neighbour: every plot is
+//! gated against the tracks near it (a grid finds them), the pairs are
+//! costed by their log-likelihood ratio against a miss and a new track,
+//! and the independent clusters are solved exactly. Each plot updates its
+//! track at the plot's own timestamp. A track takes at most one plot per
+//! sensor per scan; a plot no track takes starts a tentative track, unless
+//! it fell inside the gate of a firm track (a split plot or a multipath
+//! echo of a vessel already held: common practice).
+//!
+//! Track timeouts are checked on a one-second grid of feed time, so the
+//! result does not depend on when the daemon's clock ticks.
 
 pub mod assign;
 pub mod filter;
 pub mod imm;
 pub mod measure;
+pub mod sensors;
+pub mod track;
 
-use crate::config::Config;
-use crate::feed::{Record, SensorTable, TrackRecord, TrackStatus};
+use crate::config::{Config, MotionChoice};
+use crate::feed::tracks::speed_course;
+use crate::feed::{Detection, Record, Report, ScanEnd, SensorId, SensorKind, SensorTable, TrackRecord, TrackStatus};
+use crate::geo::{Geodetic, LocalFrame, radii_of_curvature};
 use crate::time::Timestamp;
+use assign::SparseAssigner;
+use filter::{Gaussian, Motion, StateCov, StateVec, innovation};
+use imm::{Imm, Switching};
+use nalgebra::{Matrix2, Vector2};
+use sensors::SensorModel;
+use std::collections::HashMap;
+use std::sync::Arc;
+use track::{Lifecycle, LookOutcome, Track};
 
 #[derive(Debug, thiserror::Error)]
 pub enum EngineError {
@@ -38,42 +67,630 @@ pub struct EngineStats {
     pub plots: u64,
     pub plots_associated: u64,
     pub reports: u64,
+    pub identity_conflicts: u64,
     pub batches: u64,
 }
 
+/// Grid cell edge (m). A track is found for any plot within one cell of
+/// the cell it is filed under; a track whose gate could reach further is
+/// checked against every plot instead (see `Engine::sweep`).
+const CELL_M: f64 = 2000.0;
+
+/// Batches span at most this fraction of the sensor's scan period.
+const BATCH_FRACTION: f64 = 1.0 / 16.0;
+
+/// Initial turn-rate uncertainty of a new track: 1.5°/s (1 sigma), about
+/// half the rate of a fast boat's hard turn (common practice).
+const INIT_TURN_SIGMA: f64 = 1.5 * std::f64::consts::PI / 180.0;
+
+struct PendingPlot {
+    det: Detection,
+    z: Vector2<f64>,
+    r: Matrix2<f64>,
+}
+
+#[derive(Default)]
+struct Batch {
+    sensor: SensorId,
+    first: Timestamp,
+    plots: Vec<PendingPlot>,
+}
+
+#[derive(Clone, Copy, Default)]
+struct SensorState {
+    last_scan_end: Option<Timestamp>,
+}
+
+/// Scratch space reused by every batch, so the hot path does not allocate
+/// once warmed up.
+#[derive(Default)]
+struct Scratch {
+    cand: Vec<u32>,
+    gate_pred: Vec<Gaussian>,
+    col_track: Vec<u32>,
+    pairs: Vec<(u32, u32, f64)>,
+    row_alone: Vec<f64>,
+    col_alone: Vec<f64>,
+    row_to_col: Vec<Option<u32>>,
+    near_firm: Vec<bool>,
+}
+
 pub struct Engine {
-    sensors: SensorTable,
+    site: LocalFrame,
+    radii: (f64, f64),
+    sensor_table: SensorTable,
+    sensor_names: Vec<Arc<str>>,
+    models: Vec<SensorModel>,
+    sensor_state: Vec<SensorState>,
+    imm: Imm,
+    rules: Lifecycle,
+    gate_d2: f64,
+    new_track_density: f64,
+    init_speed_sigma: f64,
+    max_silence_s: f64,
+    identified_silence_s: f64,
+    identity_gate_m: f64,
+    /// Live tracks, in order of creation (so of track number).
+    tracks: Vec<Track>,
+    /// Grid cell → indices into `tracks`.
+    grid: HashMap<(i32, i32), Vec<u32>>,
+    wide: Vec<u32>,
+    /// Identity → index into `tracks`.
+    identities: HashMap<Arc<str>, u32>,
+    next_number: u64,
+    batch: Batch,
+    batch_serial: u64,
+    next_sweep: Option<Timestamp>,
+    now: Timestamp,
     stats: EngineStats,
+    assigner: SparseAssigner,
+    scratch: Scratch,
+}
+
+fn cell_of(p: &Vector2<f64>) -> (i32, i32) {
+    ((p.x / CELL_M).floor() as i32, (p.y / CELL_M).floor() as i32)
 }
 
 impl Engine {
     pub fn new(cfg: &Config) -> Result<Engine, EngineError> {
-        Ok(Engine { sensors: cfg.sensor_table(), stats: EngineStats::default() })
+        if cfg.sensors.len() >= track::NO_SENSOR as usize {
+            return Err(EngineError::Setup { key: "sensors".into(), message: "too many sensors".into() });
+        }
+        let site = LocalFrame::new(Geodetic::new(cfg.site.lat_deg, cfg.site.lon_deg, cfg.site.height_m));
+        let t = &cfg.tracking;
+        let imm = match t.motion {
+            MotionChoice::Imm => Imm::new(
+                &[
+                    Motion::ConstantVelocity { accel_psd: t.quiet_accel_psd },
+                    Motion::CoordinatedTurn { accel_psd: t.manoeuvre_accel_psd, turn_psd: t.turn_rate_psd },
+                    Motion::ConstantVelocity { accel_psd: t.manoeuvre_accel_psd },
+                ],
+                Switching::Sojourn(t.model_sojourn_s),
+            ),
+            MotionChoice::Cv => Imm::new(&[Motion::ConstantVelocity { accel_psd: t.manoeuvre_accel_psd }], Switching::Sojourn(t.model_sojourn_s)),
+        }
+        .map_err(|e| EngineError::Setup { key: "tracking.model_sojourn_s".into(), message: e.to_string() })?;
+        let sensor_table = cfg.sensor_table();
+        let sensor_names = cfg.sensors.iter().map(|s| Arc::<str>::from(s.id.as_str())).collect();
+        let models = SensorModel::all(cfg, &site);
+        Ok(Engine {
+            radii: radii_of_curvature(cfg.site.lat_deg.to_radians()),
+            site,
+            sensor_state: vec![SensorState::default(); models.len()],
+            models,
+            sensor_table,
+            sensor_names,
+            imm,
+            rules: Lifecycle { confirm_hits: t.confirm_hits, confirm_looks: t.confirm_looks, end_hits: t.end_hits, end_looks: t.end_looks },
+            // Chi-square quantile with 2 degrees of freedom in closed form:
+            // F(x) = 1 - exp(-x/2), so x = -2 ln(1 - p).
+            gate_d2: -2.0 * (1.0 - t.gate_probability).ln(),
+            new_track_density: t.new_track_density_per_km2 * 1e-6,
+            init_speed_sigma: t.init_speed_sigma_mps,
+            max_silence_s: t.max_silence_s,
+            identified_silence_s: t.identified_silence_s,
+            identity_gate_m: t.identity_gate_m,
+            tracks: Vec::new(),
+            grid: HashMap::new(),
+            wide: Vec::new(),
+            identities: HashMap::new(),
+            next_number: 1,
+            batch: Batch::default(),
+            batch_serial: 0,
+            next_sweep: None,
+            now: Timestamp::default(),
+            stats: EngineStats::default(),
+            assigner: SparseAssigner::new(),
+            scratch: Scratch::default(),
+        })
     }
+
     pub fn sensors(&self) -> &SensorTable {
-        &self.sensors
+        &self.sensor_table
     }
+
+    pub fn site(&self) -> &LocalFrame {
+        &self.site
+    }
+
     /// Takes one record (in time order) and appends the track records it
     /// produced.
     pub fn handle(&mut self, rec: &Record, out: &mut Vec<TrackRecord>) {
-        let _ = (rec, out);
+        let t = rec.time();
+        let sensor = rec.sensor() as usize;
+        if sensor >= self.models.len() {
+            return;
+        }
+        // Close the open batch if this record does not belong to it.
+        if !self.batch.plots.is_empty() {
+            let joins = match rec {
+                Record::Detection(d) => d.sensor == self.batch.sensor && t.secs_since(self.batch.first) <= self.batch_span(d.sensor),
+                _ => false,
+            };
+            if !joins {
+                self.close_batch(out);
+            }
+        }
+        if t > self.now {
+            self.now = t;
+        }
+        self.sweep_until(t, out);
+        match rec {
+            Record::Detection(d) => self.add_plot(d),
+            Record::ScanEnd(s) => self.scan_end(s, out),
+            Record::Report(r) => self.report(r, out),
+        }
     }
-    /// Feed time has reached `now`: process what is due.
+
+    /// Feed time has reached `now`, and no record earlier than `now` will
+    /// follow: close what is due.
     pub fn advance(&mut self, now: Timestamp, out: &mut Vec<TrackRecord>) {
-        let _ = (now, out);
+        if !self.batch.plots.is_empty() {
+            if now.secs_since(self.batch.first) <= self.batch_span(self.batch.sensor) {
+                return;
+            }
+            self.close_batch(out);
+        }
+        if now > self.now {
+            self.now = now;
+        }
+        self.sweep_until(now, out);
     }
+
     /// End of the feed: process everything held back.
     pub fn finish(&mut self, out: &mut Vec<TrackRecord>) {
-        let _ = out;
+        if !self.batch.plots.is_empty() {
+            self.close_batch(out);
+        }
     }
-    /// The latest record of every live track, by track number.
+
+    /// The latest state of every live track, by track number.
     pub fn picture(&self) -> Vec<TrackRecord> {
-        Vec::new()
+        self.tracks.iter().filter(|t| t.status != TrackStatus::Ended).map(|t| self.record_of(t, t.time, &self.imm.combine(&t.state), None)).collect()
     }
+
     pub fn stats(&self) -> EngineStats {
-        self.stats.clone()
+        let mut s = self.stats.clone();
+        s.tentative = self.tracks.iter().filter(|t| t.status == TrackStatus::Tentative).count();
+        s.confirmed = self.tracks.iter().filter(|t| t.status == TrackStatus::Confirmed).count();
+        s.coasting = self.tracks.iter().filter(|t| t.status == TrackStatus::Coasting).count();
+        s
+    }
+
+    /// Number of live tracks.
+    pub fn live_tracks(&self) -> usize {
+        self.tracks.len()
+    }
+
+    fn batch_span(&self, sensor: SensorId) -> f64 {
+        self.models[sensor as usize].scan_period_s * BATCH_FRACTION
+    }
+
+    fn add_plot(&mut self, d: &Detection) {
+        let m = &self.models[d.sensor as usize];
+        let Some(radar) = &m.radar else { return };
+        let (z, r) = radar.convert(d.range_m, d.bearing_deg.to_radians(), m.sigma_r_m, m.sigma_b_rad);
+        if !(z.x.is_finite() && z.y.is_finite()) {
+            return;
+        }
+        self.stats.plots += 1;
+        if self.batch.plots.is_empty() {
+            self.batch.sensor = d.sensor;
+            self.batch.first = d.time;
+        }
+        self.batch.plots.push(PendingPlot { det: d.clone(), z, r });
+    }
+
+    /// Track record for track `t` at `time` from the Gaussian `g`.
+    fn record_of(&self, t: &Track, time: Timestamp, g: &Gaussian, sensor: Option<SensorId>) -> TrackRecord {
+        let en = Vector2::new(g.x[0], g.x[1]);
+        let (lat_deg, lon_deg) = self.site.plane_to_lat_lon_fast(en, self.radii);
+        let (speed_kn, course_deg) = speed_course(g.x[2], g.x[3]);
+        TrackRecord {
+            time,
+            track: t.number,
+            status: t.status,
+            lat_deg,
+            lon_deg,
+            east_m: g.x[0],
+            north_m: g.x[1],
+            vel_east_mps: g.x[2],
+            vel_north_mps: g.x[3],
+            speed_kn,
+            course_deg,
+            pos_cov_m2: [[g.p[(0, 0)], g.p[(0, 1)]], [g.p[(1, 0)], g.p[(1, 1)]]],
+            sensors: sensor.map(|s| vec![self.sensor_names[s as usize].clone()]).unwrap_or_default(),
+            identity: t.identity.clone(),
+        }
+    }
+
+    /// A status-change record: the track's state moved to `time` without
+    /// a measurement.
+    fn status_record(&self, t: &Track, time: Timestamp) -> TrackRecord {
+        let dt = time.secs_since(t.time).max(0.0);
+        let g = self.imm.combine(&if dt > 0.0 { self.imm.predict(&t.state, dt) } else { t.state });
+        self.record_of(t, time, &g, None)
+    }
+
+    fn new_track(&mut self, z: &Vector2<f64>, r: &Matrix2<f64>, time: Timestamp, sensor: SensorId) -> u32 {
+        let mut p = StateCov::zeros();
+        p.fixed_view_mut::<2, 2>(0, 0).copy_from(r);
+        let v2 = self.init_speed_sigma * self.init_speed_sigma;
+        p[(2, 2)] = v2;
+        p[(3, 3)] = v2;
+        p[(4, 4)] = INIT_TURN_SIGMA * INIT_TURN_SIGMA;
+        let x = StateVec::new(z.x, z.y, 0.0, 0.0, 0.0);
+        let state = self.imm.init(Gaussian { x, p }, None);
+        let mut t = Track::new(self.next_number, state, time, sensor);
+        self.next_number += 1;
+        self.stats.tracks_started += 1;
+        t.look(true, &self.rules);
+        t.cell = cell_of(z);
+        let idx = self.tracks.len() as u32;
+        self.grid.entry(t.cell).or_default().push(idx);
+        self.tracks.push(t);
+        idx
+    }
+
+    /// Files track `idx` under the cell of its current position.
+    fn refile(&mut self, idx: u32) {
+        let t = &self.tracks[idx as usize];
+        let g = self.imm.combine(&t.state);
+        let cell = cell_of(&Vector2::new(g.x[0], g.x[1]));
+        if cell == t.cell {
+            return;
+        }
+        let old = t.cell;
+        if let Some(v) = self.grid.get_mut(&old) {
+            if let Some(k) = v.iter().position(|&i| i == idx) {
+                v.swap_remove(k);
+            }
+            if v.is_empty() {
+                self.grid.remove(&old);
+            }
+        }
+        self.grid.entry(cell).or_default().push(idx);
+        self.tracks[idx as usize].cell = cell;
+    }
+
+    /// Updates track `idx` with a position measurement at `time`.
+    /// Returns false if the filter refused it.
+    fn update_track(&mut self, idx: u32, z: &Vector2<f64>, r: &Matrix2<f64>, time: Timestamp, sensor: SensorId, out: &mut Vec<TrackRecord>) -> bool {
+        let t = &self.tracks[idx as usize];
+        let dt = time.secs_since(t.time).max(0.0);
+        let pred = if dt > 0.0 { self.imm.predict(&t.state, dt) } else { t.state };
+        let Some((state, _ll)) = self.imm.update(&pred, z, r) else { return false };
+        let first_hit_this_scan = match (self.models[sensor as usize].kind, self.sensor_state[sensor as usize].last_scan_end) {
+            (SensorKind::Transponder, _) => true,
+            (_, last_end) => t.last_hit(sensor).is_none_or(|h| Some(h) <= last_end),
+        };
+        let rules = self.rules;
+        let t = &mut self.tracks[idx as usize];
+        t.state = state;
+        t.time = time;
+        t.note_hit(sensor, time);
+        if first_hit_this_scan {
+            t.look(true, &rules);
+        }
+        let g = self.imm.combine(&self.tracks[idx as usize].state);
+        out.push(self.record_of(&self.tracks[idx as usize], time, &g, Some(sensor)));
+        self.refile(idx);
+        true
+    }
+
+    fn close_batch(&mut self, out: &mut Vec<TrackRecord>) {
+        let batch = std::mem::take(&mut self.batch);
+        self.batch_serial += 1;
+        self.stats.batches += 1;
+        let serial = self.batch_serial;
+        let sensor = batch.sensor;
+        let model = &self.models[sensor as usize];
+        let pd = model.pd;
+        let min_gap = 0.5 * model.scan_period_s;
+        // ln of the density of plots that are not this track's: clutter
+        // plus new vessels, per m².
+        let beta = (model.clutter_density + self.new_track_density).max(1e-15);
+        let miss_ln = (1.0 - pd).ln();
+        let mut sc = std::mem::take(&mut self.scratch);
+        sc.col_track.clear();
+        sc.gate_pred.clear();
+        sc.pairs.clear();
+        sc.near_firm.clear();
+        sc.near_firm.resize(batch.plots.len(), false);
+        for (row, plot) in batch.plots.iter().enumerate() {
+            let (cx, cy) = cell_of(&plot.z);
+            sc.cand.clear();
+            for dx in -1..=1 {
+                for dy in -1..=1 {
+                    if let Some(v) = self.grid.get(&(cx + dx, cy + dy)) {
+                        sc.cand.extend(v.iter().copied().filter(|&i| !self.tracks[i as usize].wide));
+                    }
+                }
+            }
+            sc.cand.extend(self.wide.iter().copied());
+            // Fixed order, whatever the grid's layout.
+            sc.cand.sort_unstable();
+            for &idx in &sc.cand {
+                let t = &mut self.tracks[idx as usize];
+                if t.status == TrackStatus::Ended {
+                    continue;
+                }
+                if t.visit != serial {
+                    // First plot of this batch to look at this track: give
+                    // it a column and its gating prediction at the batch start.
+                    t.visit = serial;
+                    t.col = sc.col_track.len() as u32;
+                    let dt = batch.first.secs_since(t.time).max(0.0);
+                    let pred = if dt > 0.0 { self.imm.predict(&t.state, dt) } else { t.state };
+                    sc.col_track.push(idx);
+                    sc.gate_pred.push(self.imm.combine(&pred));
+                }
+                let t = &self.tracks[idx as usize];
+                if t.last_hit(sensor).is_some_and(|h| plot.det.time.secs_since(h) < min_gap) {
+                    continue;
+                }
+                let col = t.col as usize;
+                let g = &sc.gate_pred[col];
+                let lead = plot.det.time.secs_since(batch.first);
+                let mut moved = *g;
+                moved.x[0] += g.x[2] * lead;
+                moved.x[1] += g.x[3] * lead;
+                let Some(inn) = innovation(&moved, &plot.z, &plot.r) else { continue };
+                if inn.d2 > self.gate_d2 {
+                    continue;
+                }
+                if t.status.is_firm() {
+                    sc.near_firm[row] = true;
+                }
+                // Cost: minus the log-likelihood ratio of "this plot is
+                // this track's" against "the track missed and the plot is
+                // clutter or a new vessel".
+                let cost = -(pd.ln() + inn.log_likelihood() - miss_ln - beta.ln());
+                sc.pairs.push((row as u32, col as u32, cost));
+            }
+        }
+        sc.row_alone.clear();
+        sc.row_alone.resize(batch.plots.len(), 0.0);
+        sc.col_alone.clear();
+        sc.col_alone.resize(sc.col_track.len(), 0.0);
+        self.assigner.solve(&sc.row_alone, &sc.col_alone, &sc.pairs, &mut sc.row_to_col);
+        for (row, plot) in batch.plots.iter().enumerate() {
+            let assigned = sc.row_to_col.get(row).copied().flatten();
+            let done = match assigned {
+                Some(col) => {
+                    let idx = sc.col_track[col as usize];
+                    let ok = self.update_track(idx, &plot.z, &plot.r, plot.det.time, sensor, out);
+                    if ok {
+                        self.stats.plots_associated += 1;
+                    }
+                    ok
+                }
+                None => false,
+            };
+            if !done && !sc.near_firm[row] {
+                let idx = self.new_track(&plot.z, &plot.r, plot.det.time, sensor);
+                let t = &self.tracks[idx as usize];
+                let g = self.imm.combine(&t.state);
+                out.push(self.record_of(t, plot.det.time, &g, Some(sensor)));
+            }
+        }
+        self.scratch = sc;
+        // Give the plot buffer back for reuse.
+        let mut plots = batch.plots;
+        plots.clear();
+        self.batch.plots = plots;
+    }
+
+    fn scan_end(&mut self, s: &ScanEnd, out: &mut Vec<TrackRecord>) {
+        let sensor = s.sensor as usize;
+        let model = &self.models[sensor];
+        if model.radar.is_none() {
+            return;
+        }
+        let prev_end = self.sensor_state[sensor].last_scan_end;
+        let scan_start = prev_end.unwrap_or_else(|| s.time.plus_secs(-model.scan_period_s));
+        let mut ended = false;
+        for i in 0..self.tracks.len() {
+            let t = &self.tracks[i];
+            if t.status == TrackStatus::Ended || t.born >= scan_start {
+                continue;
+            }
+            if t.last_hit(s.sensor).is_some_and(|h| Some(h) > prev_end) {
+                continue; // hit already counted in this scan
+            }
+            let dt = s.time.secs_since(t.time).max(0.0);
+            let g = self.imm.combine(&t.state);
+            let at = Vector2::new(g.x[0] + g.x[2] * dt, g.x[1] + g.x[3] * dt);
+            if !self.models[sensor].covers(&at, s.sector_deg) {
+                continue;
+            }
+            let rules = self.rules;
+            let t = &mut self.tracks[i];
+            if t.look(false, &rules) == LookOutcome::Changed {
+                ended |= t.status == TrackStatus::Ended;
+                let rec = self.status_record(&self.tracks[i], s.time);
+                out.push(rec);
+            }
+        }
+        self.sensor_state[sensor].last_scan_end = Some(s.time);
+        if ended {
+            self.compact();
+        }
+    }
+
+    /// Runs the one-second timeout checks for every whole second of feed
+    /// time up to `t`.
+    fn sweep_until(&mut self, t: Timestamp, out: &mut Vec<TrackRecord>) {
+        const SEC: i64 = 1_000_000_000;
+        let next = match self.next_sweep {
+            Some(n) => n,
+            None => {
+                let first = Timestamp::from_unix_nanos((t.unix_nanos().div_euclid(SEC) + 1) * SEC);
+                self.next_sweep = Some(first);
+                return;
+            }
+        };
+        if t < next {
+            return;
+        }
+        // Sweep once, at the latest whole second reached: the checks are
+        // monotone in time, so skipped seconds would find nothing more.
+        let at = Timestamp::from_unix_nanos(t.unix_nanos().div_euclid(SEC) * SEC);
+        self.next_sweep = Some(Timestamp::from_unix_nanos(at.unix_nanos() + SEC));
+        self.sweep(at, out);
+    }
+
+    fn sweep(&mut self, at: Timestamp, out: &mut Vec<TrackRecord>) {
+        let mut ended = false;
+        self.wide.clear();
+        for i in 0..self.tracks.len() {
+            let t = &self.tracks[i];
+            if t.status == TrackStatus::Ended {
+                continue;
+            }
+            let silence = at.secs_since(t.time);
+            let limit = if t.identity.is_some() { self.identified_silence_s } else { self.max_silence_s };
+            let g = self.imm.combine(&t.state);
+            let dt = silence.max(0.0);
+            let at_pos = Vector2::new(g.x[0] + g.x[2] * dt, g.x[1] + g.x[3] * dt);
+            if silence > limit {
+                let covered = self.models.iter().any(|m| m.covers(&at_pos, None));
+                // Inside coverage the look rules end a track; the 4× limit
+                // is a backstop for a radar that has stopped sending.
+                if !covered || silence > 4.0 * limit {
+                    let rec = {
+                        let t = &mut self.tracks[i];
+                        t.status = TrackStatus::Ended;
+                        self.status_record(&self.tracks[i], at)
+                    };
+                    out.push(rec);
+                    ended = true;
+                    continue;
+                }
+            }
+            // Reach over the next second: drift plus a generous gate on
+            // the grown position uncertainty and the widest plot error.
+            let horizon = dt + 1.0;
+            let speed = g.x[2].hypot(g.x[3]) + 3.0 * (g.p[(2, 2)] + g.p[(3, 3)]).sqrt();
+            let pos_var = g.p[(0, 0)] + g.p[(1, 1)] + horizon * horizon * (g.p[(2, 2)] + g.p[(3, 3)]) + 300.0 * 300.0;
+            let reach = speed * horizon + (self.gate_d2 * pos_var).sqrt();
+            let wide = reach > CELL_M;
+            self.tracks[i].wide = wide;
+            if wide {
+                self.wide.push(i as u32);
+            }
+        }
+        if ended {
+            self.compact();
+        }
+    }
+
+    /// Drops ended tracks and refiles the rest.
+    fn compact(&mut self) {
+        let before = self.tracks.len();
+        self.tracks.retain(|t| t.status != TrackStatus::Ended);
+        self.stats.tracks_ended += (before - self.tracks.len()) as u64;
+        self.grid.clear();
+        self.wide.clear();
+        self.identities.clear();
+        for (i, t) in self.tracks.iter().enumerate() {
+            self.grid.entry(t.cell).or_default().push(i as u32);
+            if t.wide {
+                self.wide.push(i as u32);
+            }
+            if let Some(id) = &t.identity {
+                self.identities.insert(id.clone(), i as u32);
+            }
+        }
+    }
+
+    fn report(&mut self, r: &Report, out: &mut Vec<TrackRecord>) {
+        let model = &self.models[r.sensor as usize];
+        self.stats.reports += 1;
+        let sigma = model.position_sigma_m;
+        let z = self.site.geodetic_to_plane(Geodetic::new(r.lat_deg, r.lon_deg, 0.0));
+        let rcov = Matrix2::new(sigma * sigma, 0.0, 0.0, sigma * sigma);
+        if let Some(&idx) = self.identities.get(&r.id) {
+            let t = &self.tracks[idx as usize];
+            let dt = r.time.secs_since(t.time).max(0.0);
+            let g = self.imm.combine(&t.state);
+            let at = Vector2::new(g.x[0] + g.x[2] * dt, g.x[1] + g.x[3] * dt);
+            if (at - z).norm() <= self.identity_gate_m {
+                self.update_track(idx, &z, &rcov, r.time, r.sensor, out);
+            } else {
+                self.stats.identity_conflicts += 1;
+            }
+            return;
+        }
+        // A new identity: the best-fitting track that holds none.
+        let (cx, cy) = cell_of(&z);
+        let mut best: Option<(f64, u32)> = None;
+        let mut cands: Vec<u32> = Vec::new();
+        for dx in -1..=1 {
+            for dy in -1..=1 {
+                if let Some(v) = self.grid.get(&(cx + dx, cy + dy)) {
+                    cands.extend(v.iter().copied());
+                }
+            }
+        }
+        cands.extend(self.wide.iter().copied());
+        cands.sort_unstable();
+        cands.dedup();
+        for idx in cands {
+            let t = &self.tracks[idx as usize];
+            if t.identity.is_some() || t.status == TrackStatus::Ended {
+                continue;
+            }
+            let dt = r.time.secs_since(t.time).max(0.0);
+            let g = self.imm.combine(&if dt > 0.0 { self.imm.predict(&t.state, dt) } else { t.state });
+            let Some(inn) = innovation(&g, &z, &rcov) else { continue };
+            if inn.d2 > self.gate_d2 {
+                continue;
+            }
+            let cost = inn.d2 + inn.ln_det_s;
+            if best.is_none_or(|(c, _)| cost < c) {
+                best = Some((cost, idx));
+            }
+        }
+        let idx = match best {
+            Some((_, idx)) => {
+                self.tracks[idx as usize].identity = Some(r.id.clone());
+                self.identities.insert(r.id.clone(), idx);
+                if !self.update_track(idx, &z, &rcov, r.time, r.sensor, out) {
+                    return;
+                }
+                idx
+            }
+            None => {
+                let idx = self.new_track(&z, &rcov, r.time, r.sensor);
+                self.tracks[idx as usize].identity = Some(r.id.clone());
+                self.identities.insert(r.id.clone(), idx);
+                let t = &self.tracks[idx as usize];
+                let g = self.imm.combine(&t.state);
+                out.push(self.record_of(t, r.time, &g, Some(r.sensor)));
+                idx
+            }
+        };
+        let _ = idx;
     }
 }
-
-#[allow(dead_code)]
-fn _status_used(_: TrackStatus) {}

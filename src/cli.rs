@@ -1,0 +1,155 @@
+//! The command line: `skerry <command>`. Each command is a thin layer over
+//! the library.
+
+use crate::config::Config;
+use crate::engine::Engine;
+use crate::offline::{read_feeds, report_rejects};
+use anyhow::{Context, Result};
+use clap::{Parser, Subcommand};
+use std::io::Write;
+use std::path::PathBuf;
+
+#[derive(Parser, Debug)]
+#[command(name = "skerry", version, about = "Streaming multi-target tracker for harbour and coastal surveillance", long_about = None)]
+pub struct Cli {
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+#[derive(Subcommand, Debug)]
+pub enum Command {
+    /// Run the tracking engine over recorded feed files and write track records.
+    Track(TrackArgs),
+    /// Decode and validate feed files only; print counts per sensor and reject reason.
+    Check(CheckArgs),
+    /// One command that shows skerry working on the bundled demo harbour.
+    Demo(DemoArgs),
+}
+
+#[derive(clap::Args, Debug)]
+pub struct TrackArgs {
+    /// Configuration file (TOML): site, sensors, tracking.
+    #[arg(long, short)]
+    pub config: PathBuf,
+    /// Feed files (JSON Lines); records may be in any order.
+    #[arg(required = true)]
+    pub feeds: Vec<PathBuf>,
+    /// Write track records here instead of standard output.
+    #[arg(long, short)]
+    pub out: Option<PathBuf>,
+}
+
+#[derive(clap::Args, Debug)]
+pub struct CheckArgs {
+    /// Configuration file (TOML).
+    #[arg(long, short)]
+    pub config: PathBuf,
+    /// Feed files (JSON Lines).
+    #[arg(required = true)]
+    pub feeds: Vec<PathBuf>,
+}
+
+#[derive(clap::Args, Debug)]
+pub struct DemoArgs {
+    /// Folder with the demo scenario (feed.jsonl, truth.jsonl, config.toml).
+    #[arg(long, default_value = "demo-feeds/busy-afternoon")]
+    pub scenario: PathBuf,
+}
+
+pub fn load_config(path: &std::path::Path) -> Result<Config> {
+    Ok(Config::load(Some(path), &Config::env_overrides())?)
+}
+
+/// Runs the engine over a decoded feed and returns the track records.
+pub fn run_engine(cfg: &Config, records: &[crate::feed::Record]) -> Result<Vec<crate::feed::TrackRecord>> {
+    let mut engine = Engine::new(cfg)?;
+    let mut out = Vec::with_capacity(records.len());
+    for r in records {
+        engine.handle(r, &mut out);
+    }
+    engine.finish(&mut out);
+    Ok(out)
+}
+
+pub fn track(args: &TrackArgs) -> Result<()> {
+    let cfg = load_config(&args.config)?;
+    let feed = read_feeds(&args.feeds, &cfg)?;
+    report_rejects(&feed, &cfg.sensor_table());
+    let mut engine = Engine::new(&cfg)?;
+    let sink: Box<dyn Write> = match &args.out {
+        Some(p) => Box::new(std::fs::File::create(p).with_context(|| format!("{}: cannot create", p.display()))?),
+        None => Box::new(std::io::stdout().lock()),
+    };
+    let mut w = std::io::BufWriter::with_capacity(1 << 16, sink);
+    let mut out = Vec::new();
+    let mut line = String::with_capacity(512);
+    let mut written = 0u64;
+    let mut flush = |out: &mut Vec<crate::feed::TrackRecord>, w: &mut std::io::BufWriter<Box<dyn Write>>| -> Result<()> {
+        for r in out.drain(..) {
+            line.clear();
+            r.write_json(&mut line);
+            line.push('\n');
+            w.write_all(line.as_bytes())?;
+            written += 1;
+        }
+        Ok(())
+    };
+    for r in &feed.records {
+        engine.handle(r, &mut out);
+        if out.len() > 256 {
+            flush(&mut out, &mut w)?;
+        }
+    }
+    engine.finish(&mut out);
+    flush(&mut out, &mut w)?;
+    w.flush()?;
+    drop(w);
+    let s = engine.stats();
+    eprintln!(
+        "{} records tracked ({} rejected); {} track records written; tracks started {}, live at end {} ({} confirmed, {} coasting, {} tentative)",
+        feed.records.len(),
+        feed.counts.total_rejected(),
+        written,
+        s.tracks_started,
+        engine.live_tracks(),
+        s.confirmed,
+        s.coasting,
+        s.tentative
+    );
+    Ok(())
+}
+
+pub fn check(args: &CheckArgs) -> Result<()> {
+    let cfg = load_config(&args.config)?;
+    let feed = read_feeds(&args.feeds, &cfg)?;
+    let sensors = cfg.sensor_table();
+    report_rejects(&feed, &sensors);
+    print!("{}", feed.counts.table(&sensors));
+    Ok(())
+}
+
+pub fn demo(args: &DemoArgs) -> Result<()> {
+    let cfg = load_config(&args.scenario.join("config.toml"))?;
+    let feed = read_feeds(&[args.scenario.join("feed.jsonl")], &cfg)?;
+    let start = std::time::Instant::now();
+    let tracks = run_engine(&cfg, &feed.records)?;
+    let elapsed = start.elapsed();
+    let mut firm = std::collections::BTreeSet::new();
+    for t in &tracks {
+        if t.status.is_firm() {
+            firm.insert(t.track);
+        }
+    }
+    println!("skerry demo: {} feed records from {}", feed.records.len(), args.scenario.display());
+    println!("  {} track records, {} tracks ever confirmed, engine time {:.3} s", tracks.len(), firm.len(), elapsed.as_secs_f64());
+    Ok(())
+}
+
+pub fn main() -> Result<()> {
+    let cli = Cli::parse();
+    match &cli.command {
+        Command::Track(a) => track(a),
+        Command::Check(a) => check(a),
+        Command::Demo(a) => demo(a),
+    }
+}

@@ -1,0 +1,127 @@
+//! Offline reading of feed files, shared by `skerry check` and
+//! `skerry track` (CONTRACT.md §4).
+//!
+//! A feed is read whole, decoded line by line, screened for implausible
+//! times against the feed's median time, ordered by time (stably, so equal
+//! times keep file order), and screened for exact duplicates. Bad lines
+//! are counted per sensor and reason and reported on standard error with
+//! their file and line, a few at a time; they never stop the run.
+
+use crate::config::Config;
+use crate::feed::screen::median_time;
+use crate::feed::{FeedCounts, Record, Reject, Screen, SensorTable, decode_line};
+use crate::time::Timestamp;
+use std::path::{Path, PathBuf};
+
+/// How many individual bad lines are printed before only counting.
+const SHOWN_REJECTS: usize = 10;
+
+#[derive(Debug, thiserror::Error)]
+pub enum ReadError {
+    #[error("{path}: cannot read: {source}")]
+    Io { path: String, source: std::io::Error },
+}
+
+/// One rejected line, for the report.
+#[derive(Debug, Clone)]
+pub struct BadLine {
+    pub file: PathBuf,
+    pub line: usize,
+    pub reject: Reject,
+}
+
+/// A decoded, screened and ordered feed.
+#[derive(Debug, Default)]
+pub struct Feed {
+    pub records: Vec<Record>,
+    pub counts: FeedCounts,
+    pub bad: Vec<BadLine>,
+    pub lines: usize,
+}
+
+/// The lines of a byte buffer, without their line ends. A final line with
+/// no newline is still a line.
+pub fn split_lines(bytes: &[u8]) -> impl Iterator<Item = &[u8]> {
+    let bytes = bytes.strip_suffix(b"\n").unwrap_or(bytes);
+    bytes.split(|&b| b == b'\n').map(|l| l.strip_suffix(b"\r").unwrap_or(l)).filter(|_| !bytes.is_empty())
+}
+
+/// Decodes one file's bytes, appending accepted records (with their file
+/// order) to `out`.
+pub fn decode_bytes(bytes: &[u8], file: &Path, sensors: &SensorTable, feed: &mut Feed, out: &mut Vec<Record>) {
+    for (i, line) in split_lines(bytes).enumerate() {
+        if line.iter().all(u8::is_ascii_whitespace) {
+            continue;
+        }
+        feed.lines += 1;
+        match decode_line(line, sensors) {
+            Ok(r) => out.push(r),
+            Err(reject) => {
+                feed.counts.reject(&reject);
+                feed.bad.push(BadLine { file: file.to_path_buf(), line: i + 1, reject });
+            }
+        }
+    }
+}
+
+/// Reads, decodes, screens and orders the feed files.
+pub fn read_feeds(paths: &[PathBuf], cfg: &Config) -> Result<Feed, ReadError> {
+    let sensors = cfg.sensor_table();
+    let mut feed = Feed::default();
+    let mut decoded = Vec::new();
+    for p in paths {
+        let bytes = std::fs::read(p).map_err(|source| ReadError::Io { path: p.display().to_string(), source })?;
+        decode_bytes(&bytes, p, &sensors, &mut feed, &mut decoded);
+    }
+    let mut times: Vec<Timestamp> = decoded.iter().map(Record::time).collect();
+    let reference = median_time(&mut times);
+    let mut screen = Screen::new(reference, cfg.feed.max_time_offset_s);
+    // Stable: records with equal times keep their file order.
+    decoded.sort_by_key(Record::time);
+    feed.records.reserve(decoded.len());
+    for r in decoded {
+        match screen.admit(&r) {
+            Ok(()) => {
+                feed.counts.accept(r.sensor());
+                feed.records.push(r);
+            }
+            Err(reject) => feed.counts.reject(&reject),
+        }
+    }
+    Ok(feed)
+}
+
+/// Prints the first bad lines and the counts to standard error.
+pub fn report_rejects(feed: &Feed, sensors: &SensorTable) {
+    for b in feed.bad.iter().take(SHOWN_REJECTS) {
+        let who = b.reject.sensor.map(|s| format!(" (sensor {})", sensors.name(s))).unwrap_or_default();
+        eprintln!("{}:{}: rejected: {}{}", b.file.display(), b.line, b.reject.reason, who);
+    }
+    if feed.bad.len() > SHOWN_REJECTS {
+        eprintln!("... and {} more bad lines", feed.bad.len() - SHOWN_REJECTS);
+    }
+    let rejected = feed.counts.total_rejected();
+    if rejected > 0 {
+        eprintln!("{} of {} records rejected:", rejected, feed.lines);
+        let mut by_reason: std::collections::BTreeMap<&str, u64> = Default::default();
+        for ((_, k), n) in &feed.counts.rejected {
+            *by_reason.entry(k).or_default() += n;
+        }
+        for (k, n) in by_reason {
+            eprintln!("  {k:<20} {n}");
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn lines() {
+        let v: Vec<&[u8]> = split_lines(b"a\r\nb\n\nc").collect();
+        assert_eq!(v, vec![&b"a"[..], b"b", b"", b"c"]);
+        assert_eq!(split_lines(b"").count(), 0);
+        assert_eq!(split_lines(b"x\n").count(), 1);
+    }
+}
