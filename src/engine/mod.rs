@@ -32,6 +32,7 @@
 pub mod assign;
 pub mod filter;
 pub mod imm;
+pub mod jpda;
 pub mod measure;
 pub mod sensors;
 pub mod track;
