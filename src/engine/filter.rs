@@ -156,7 +156,6 @@ pub fn predict_linear(g: &Gaussian, f: &StateCov, q: &StateCov) -> Gaussian {
 }
 
 fn sanitize_dt(dt: f64) -> f64 {
-    debug_assert!(!(dt < 0.0), "negative prediction interval {dt}");
     if dt.is_finite() && dt > 0.0 { dt } else { 0.0 }
 }
 
