@@ -1,12 +1,32 @@
 //! Interacting multiple model (IMM) estimator over the motion models of
-//! [`super::filter`].
+//! [`super::filter`] (Blom & Bar-Shalom 1988; Bar-Shalom, Li &
+//! Kirubarajan 2001, §11.6).
 //!
-//! STUB: to be implemented.
+//! One cycle is [`Imm::predict`] (mixing, then each model's prediction)
+//! followed by [`Imm::update`] (each model's Kalman update, then the model
+//! probabilities from their likelihoods). [`Imm::combine`] gives the
+//! moment-matched single Gaussian of a state, predicted or updated.
+//!
+//! Contract:
+//! - `ImmState::mu` sums to 1 over the first `n_models()` entries after
+//!   every call; entries past the model count are 0 and their components
+//!   are ignored.
+//! - [`ImmState::mu`] after [`Imm::predict`] holds the *predicted* model
+//!   probabilities `c̄_j = Σ_i π_ij μ_i`, so `combine` of a predicted state is
+//!   the predicted mixture.
+//! - Likelihoods are combined in logs, so a measurement far from every
+//!   model (likelihoods that would underflow to 0 as plain numbers) still
+//!   gives normalised probabilities; a model whose probability underflows
+//!   to 0 comes back through the switching at the next prediction.
+//! - All covariances returned are exactly symmetric; no heap is used.
 
-use super::filter::{Gaussian, Motion};
+use super::filter::{Gaussian, Motion, StateCov, StateVec, update as kalman_update};
 use nalgebra::{Matrix2, Vector2};
 
 pub const MAX_MODELS: usize = 3;
+
+/// Allowed error in a row sum of a [`Switching::Fixed`] matrix.
+const ROW_SUM_TOLERANCE: f64 = 1e-9;
 
 /// How the IMM's models switch.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -17,6 +37,13 @@ pub enum Switching {
     /// Continuous-time switching: mean time in each model (s); leaving a
     /// model, the others are chosen with equal probability. The transition
     /// matrix over dt is built from these.
+    ///
+    /// Over an interval `dt` the stay probability is `π_ii = exp(−dt/τ_i)`
+    /// (the sojourn in model i is exponential with mean τ_i) and the rest,
+    /// `1 − π_ii`, is split evenly among the other models. This treats at
+    /// most one switch per interval, which is the usual approximation for
+    /// scan intervals short against the sojourn times (common practice).
+    /// τ_i = ∞ means model i is never left.
     Sojourn([f64; MAX_MODELS]),
 }
 
@@ -41,38 +68,233 @@ pub enum ImmError {
     ModelCount,
     #[error("transition probabilities must be in [0, 1] and each row must sum to 1")]
     Transition,
+    #[error("mean sojourn times must be positive (infinity allowed)")]
+    Sojourn,
+    #[error("motion model parameters must be finite and non-negative")]
+    ModelParameter,
 }
+
+/// Initial model probabilities for a new track with [`Imm::vessel_default`]:
+/// most new tracks are vessels under way on a steady course (common
+/// practice).
+pub const VESSEL_MU0: [f64; MAX_MODELS] = [0.8, 0.1, 0.1];
 
 impl Imm {
     pub fn new(models: &[Motion], switching: Switching) -> Result<Imm, ImmError> {
-        let _ = (models, switching);
-        todo!()
+        let n = models.len();
+        if n == 0 || n > MAX_MODELS {
+            return Err(ImmError::ModelCount);
+        }
+        if !models.iter().all(Motion::is_valid) {
+            return Err(ImmError::ModelParameter);
+        }
+        match &switching {
+            Switching::Fixed(m) => {
+                for row in m.iter().take(n) {
+                    let row = &row[..n];
+                    if !row.iter().all(|p| (0.0..=1.0).contains(p))
+                        || (row.iter().sum::<f64>() - 1.0).abs() > ROW_SUM_TOLERANCE
+                    {
+                        return Err(ImmError::Transition);
+                    }
+                }
+            }
+            Switching::Sojourn(tau) => {
+                // `!(t > 0)` also rejects NaN.
+                if tau[..n].iter().any(|t| !(*t > 0.0)) {
+                    return Err(ImmError::Sojourn);
+                }
+            }
+        }
+        let mut all = [models[0]; MAX_MODELS];
+        all[..n].copy_from_slice(models);
+        Ok(Imm { models: all, n, switching })
     }
+
+    /// A default IMM for vessels seen by a harbour or coastal radar, in
+    /// this order:
+    ///
+    /// 0. quiet CV, `accel_psd` 0.02 m²/s³: a vessel on a steady course.
+    ///    Over a 3 s scan the velocity wanders by √(qT) ≈ 0.25 m/s,
+    ///    which covers wind, current and helm noise of ships and most
+    ///    small craft (the usual sizing √(qT) ≈ typical velocity change per
+    ///    scan, BLK 2001 §6.2.2; values common practice).
+    /// 1. CT, `accel_psd` 0.05 m²/s³ and `turn_psd` 1e-4 rad²/s³: the turn
+    ///    rate random-walks by √(1e-4·3) ≈ 0.017 rad/s (1°/s) per 3 s scan
+    ///    and ≈ 2.2°/s over 15 s, so a turn of up to ~3°/s (fast boats;
+    ///    large ships turn at well under 1°/s) is reached within a few
+    ///    scans (common practice).
+    /// 2. manoeuvring CV, `accel_psd` 0.5 m²/s³: speed changes; √(qT) ≈
+    ///    1.2 m/s per 3 s scan, i.e. about 0.4 m/s² of sustained
+    ///    acceleration or braking (fast craft; common practice).
+    ///
+    /// Switching is [`Switching::Sojourn`] with mean times 60 s (steady
+    /// legs last minutes), 20 s (a turn takes tens of seconds) and 15 s
+    /// (speed changes are short) — common practice. Start tracks with
+    /// [`VESSEL_MU0`].
+    pub fn vessel_default() -> Imm {
+        let models = [
+            Motion::ConstantVelocity { accel_psd: 0.02 },
+            Motion::CoordinatedTurn { accel_psd: 0.05, turn_psd: 1e-4 },
+            Motion::ConstantVelocity { accel_psd: 0.5 },
+        ];
+        Imm { models, n: 3, switching: Switching::Sojourn([60.0, 20.0, 15.0]) }
+    }
+
     pub fn n_models(&self) -> usize {
         self.n
     }
-    /// Every model starts from `g`; `mu0` gives the initial model
-    /// probabilities (uniform if `None`).
-    pub fn init(&self, g: Gaussian, mu0: Option<&[f64]>) -> ImmState {
-        let _ = (g, mu0);
-        todo!()
+
+    pub fn models(&self) -> &[Motion] {
+        &self.models[..self.n]
     }
+
+    pub fn switching(&self) -> &Switching {
+        &self.switching
+    }
+
+    /// The model transition matrix over `dt` seconds: entry `[i][j]` is
+    /// P(model j after dt | model i before). Entries past the model count
+    /// are 0.
+    pub fn transition_matrix(&self, dt: f64) -> [[f64; MAX_MODELS]; MAX_MODELS] {
+        let n = self.n;
+        let mut out = [[0.0; MAX_MODELS]; MAX_MODELS];
+        match &self.switching {
+            Switching::Fixed(m) => {
+                for i in 0..n {
+                    out[i][..n].copy_from_slice(&m[i][..n]);
+                }
+            }
+            Switching::Sojourn(tau) => {
+                let dt = if dt.is_finite() && dt > 0.0 { dt } else { 0.0 };
+                for i in 0..n {
+                    if n == 1 {
+                        out[0][0] = 1.0;
+                        break;
+                    }
+                    let stay = (-dt / tau[i]).exp();
+                    let leave = (1.0 - stay) / (n - 1) as f64;
+                    for j in 0..n {
+                        out[i][j] = if i == j { stay } else { leave };
+                    }
+                }
+            }
+        }
+        out
+    }
+
+    /// Every model starts from `g`; `mu0` gives the initial model
+    /// probabilities (uniform if `None`). `mu0`'s first `n_models()`
+    /// entries are used; negative or non-finite entries count as 0, and if
+    /// nothing positive remains (or `mu0` is too short) the probabilities
+    /// are uniform.
+    pub fn init(&self, g: Gaussian, mu0: Option<&[f64]>) -> ImmState {
+        let n = self.n;
+        let mut mu = [0.0; MAX_MODELS];
+        let mut total = 0.0;
+        if let Some(m) = mu0.filter(|m| m.len() >= n) {
+            for (dst, &v) in mu.iter_mut().zip(&m[..n]) {
+                *dst = if v.is_finite() && v > 0.0 { v } else { 0.0 };
+                total += *dst;
+            }
+        }
+        if total > 0.0 && total.is_finite() {
+            mu[..n].iter_mut().for_each(|m| *m /= total);
+        } else {
+            mu = [0.0; MAX_MODELS];
+            mu[..n].iter_mut().for_each(|m| *m = 1.0 / n as f64);
+        }
+        ImmState { comps: [g; MAX_MODELS], mu }
+    }
+
     /// Mixing, then each model's prediction over `dt` seconds.
     pub fn predict(&self, s: &ImmState, dt: f64) -> ImmState {
-        let _ = (s, dt);
-        todo!()
+        let n = self.n;
+        let pi = self.transition_matrix(dt);
+        let mut out = *s;
+        let mut cbar = [0.0; MAX_MODELS];
+        for j in 0..n {
+            cbar[j] = (0..n).map(|i| pi[i][j] * s.mu[i]).sum();
+        }
+        for j in 0..n {
+            // Mixing weights μ_{i|j} = π_ij μ_i / c̄_j. A model that cannot
+            // be reached (c̄_j = 0) has weight 0 afterwards, so any proper
+            // mixture will do for its prior; the current μ is used.
+            let mut w = [0.0; MAX_MODELS];
+            for i in 0..n {
+                w[i] = if cbar[j] > 0.0 { pi[i][j] * s.mu[i] / cbar[j] } else { s.mu[i] };
+            }
+            let mixed = moment_match(&s.comps[..n], &w[..n]);
+            out.comps[j] = self.models[j].predict(&mixed, dt);
+        }
+        out.mu = normalized(cbar, n);
+        out
     }
+
     /// The moment-matched single Gaussian of the mixture.
     pub fn combine(&self, s: &ImmState) -> Gaussian {
-        let _ = s;
-        todo!()
+        moment_match(&s.comps[..self.n], &s.mu[..self.n])
     }
+
     /// Updates each model with position measurement `z` (covariance `r`)
     /// and the model probabilities with their likelihoods. Returns the new
     /// state and the mixture's log-likelihood ln Σ μ_j N_j; `None` if no
     /// model could be updated.
     pub fn update(&self, pred: &ImmState, z: &Vector2<f64>, r: &Matrix2<f64>) -> Option<(ImmState, f64)> {
-        let _ = (pred, z, r);
-        todo!()
+        let n = self.n;
+        let mut out = *pred;
+        let mut log_w = [f64::NEG_INFINITY; MAX_MODELS];
+        for j in 0..n {
+            // A model that cannot take the measurement keeps its prediction
+            // and drops to probability 0 for this scan.
+            if let Some((post, inn)) = kalman_update(&pred.comps[j], z, r) {
+                out.comps[j] = post;
+                log_w[j] = pred.mu[j].ln() + inn.log_likelihood();
+            }
+        }
+        let max = log_w[..n].iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        if !max.is_finite() {
+            return None;
+        }
+        let mut w = [0.0; MAX_MODELS];
+        let mut sum = 0.0;
+        for j in 0..n {
+            w[j] = (log_w[j] - max).exp();
+            sum += w[j];
+        }
+        // sum ≥ 1: the largest term is exp(0).
+        out.mu = [0.0; MAX_MODELS];
+        for j in 0..n {
+            out.mu[j] = w[j] / sum;
+        }
+        Some((out, max + sum.ln()))
     }
+}
+
+/// Σ w_i N(x_i, P_i) moment-matched: x̄ = Σ w_i x_i,
+/// P̄ = Σ w_i (P_i + (x_i − x̄)(x_i − x̄)ᵀ). `w` sums to 1.
+fn moment_match(comps: &[Gaussian], w: &[f64]) -> Gaussian {
+    let mut x = StateVec::zeros();
+    for (c, &wi) in comps.iter().zip(w) {
+        x += c.x * wi;
+    }
+    let mut p = StateCov::zeros();
+    for (c, &wi) in comps.iter().zip(w) {
+        if wi == 0.0 {
+            continue;
+        }
+        let d = c.x - x;
+        p += (c.p + d * d.transpose()) * wi;
+    }
+    Gaussian { x, p: (p + p.transpose()) * 0.5 }
+}
+
+fn normalized(mut mu: [f64; MAX_MODELS], n: usize) -> [f64; MAX_MODELS] {
+    let total: f64 = mu[..n].iter().sum();
+    if total > 0.0 && total.is_finite() {
+        mu[..n].iter_mut().for_each(|m| *m /= total);
+    } else {
+        mu[..n].iter_mut().for_each(|m| *m = 1.0 / n as f64);
+    }
+    mu
 }
