@@ -9,7 +9,7 @@
 //!
 //! A radar measures slant range and true bearing at its own antenna, whose
 //! local north differs from the site's by the meridian convergence (about
-//! 0.1° between sites 10 km apart at 57° N). [`Antenna`] turns a plot into
+//! 0.14° between sites 10 km apart east-west at 57° N). [`Antenna`] turns a plot into
 //! ECEF through the antenna's own frame, then into the site plane, so both
 //! the antenna height and the convergence are handled without approximation.
 
@@ -229,28 +229,43 @@ impl Antenna {
 
     /// ECEF point at slant range `range_m` and true bearing `bearing_rad`
     /// from the antenna, on the surface at ellipsoidal height `target_h_m`.
-    /// If the range is too short to reach that surface (the plot would lie
-    /// above the antenna's own height drop), the point at zero elevation is
-    /// returned.
+    /// If the range is too short to reach that surface (no longer than the
+    /// height difference), the point at zero elevation is returned.
     pub fn plot_to_ecef(&self, range_m: f64, bearing_rad: f64, target_h_m: f64) -> Vector3<f64> {
+        use std::f64::consts::FRAC_PI_2;
         let (sb, cb) = bearing_rad.sin_cos();
         let at = |elev: f64| {
             let (se, ce) = elev.sin_cos();
             self.local.enu_to_ecef(Vector3::new(range_m * ce * sb, range_m * ce * cb, range_m * se))
         };
         let dh = target_h_m - self.local.origin.h_m;
+        // Geodetic height is measured along the normal, so the nearest point
+        // of the target surface is |dh| away, straight down (or up).
+        if range_m <= dh.abs() {
+            return at(0.0);
+        }
+        // The height of at(elev) rises monotonically with elev on [−π/2, π/2]
+        // (for ranges far below the Earth's radius), so keep a bracket and
+        // fall back to bisection whenever Newton would leave it: near the
+        // nadir the derivative r·cos(elev) vanishes.
+        let mut lo = -FRAC_PI_2;
+        let mut hi = FRAC_PI_2;
         // Spherical first guess, then Newton with d(height)/d(elev) ≈ r·cos(elev).
         let guess = (dh - range_m * range_m / (2.0 * 6_371_000.0)) / range_m;
         let mut elev = guess.clamp(-1.0, 1.0).asin();
         let mut p = at(elev);
-        for _ in 0..8 {
-            let h = ecef_to_geodetic(p).h_m;
-            let err = h - target_h_m;
+        for _ in 0..60 {
+            let err = ecef_to_geodetic(p).h_m - target_h_m;
             if err.abs() < 1e-7 {
                 break;
             }
-            let step = err / (range_m * elev.cos()).max(1e-3);
-            elev = (elev - step).clamp(-std::f64::consts::FRAC_PI_2, std::f64::consts::FRAC_PI_2);
+            if err > 0.0 {
+                hi = elev;
+            } else {
+                lo = elev;
+            }
+            let newton = elev - err / (range_m * elev.cos());
+            elev = if newton.is_finite() && newton > lo && newton < hi { newton } else { 0.5 * (lo + hi) };
             p = at(elev);
         }
         p

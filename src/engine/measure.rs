@@ -245,7 +245,11 @@ mod tests {
         for (j, k, d) in [(0, 0, x), (1, 1, -x), (0, 1, 0.0)] {
             assert!((m.mse[(j, k)] - t[(j, k)]).abs() < 5.0 * m.se_mse[(j, k)], "sample ({j},{k}) {} vs {}", m.mse[(j, k)], t[(j, k)]);
             let want = t[(j, k)] + d;
-            assert!((m.avg_cov[(j, k)] - want).abs() < 5.0 * m.se_avg_cov[(j, k)] + 1e-9 * want.abs(), "E[cov] ({j},{k}) {} vs {want}", m.avg_cov[(j, k)]);
+            assert!(
+                (m.avg_cov[(j, k)] - want).abs() < 5.0 * m.se_avg_cov[(j, k)] + 1e-9 * want.abs(),
+                "E[cov] ({j},{k}) {} vs {want}",
+                m.avg_cov[(j, k)]
+            );
         }
         // The overstatement is large here: about 2.7× the actual range variance.
         let ratio = m.avg_cov[(0, 0)] / m.mse[(0, 0)];
