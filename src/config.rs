@@ -134,8 +134,11 @@ pub struct TrackingConfig {
     pub new_track_density_per_km2: f64,
     /// IMM: accel PSD of the quiet straight-running model (m²/s³).
     pub quiet_accel_psd: f64,
-    /// IMM: accel PSD of the manoeuvring models (m²/s³).
+    /// IMM: accel PSD of the manoeuvring straight-running model, and of
+    /// the single model of `motion = "cv"` (m²/s³).
     pub manoeuvre_accel_psd: f64,
+    /// IMM: accel PSD on the linear axes of the coordinated-turn model (m²/s³).
+    pub turn_accel_psd: f64,
     /// IMM: turn-rate PSD of the coordinated-turn model (rad²/s³).
     pub turn_rate_psd: f64,
     /// IMM: mean time spent in each model before switching (s).
@@ -292,6 +295,7 @@ impl Config {
             ("tracking.init_speed_sigma_mps", t.init_speed_sigma_mps),
             ("tracking.quiet_accel_psd", t.quiet_accel_psd),
             ("tracking.manoeuvre_accel_psd", t.manoeuvre_accel_psd),
+            ("tracking.turn_accel_psd", t.turn_accel_psd),
             ("tracking.turn_rate_psd", t.turn_rate_psd),
             ("tracking.identity_gate_m", t.identity_gate_m),
             ("feed.max_time_offset_s", self.feed.max_time_offset_s),

@@ -124,6 +124,8 @@ pub struct Engine {
     models: Vec<SensorModel>,
     sensor_state: Vec<SensorState>,
     imm: Imm,
+    /// Initial model probabilities of a new track.
+    mu0: Vec<f64>,
     rules: Lifecycle,
     gate_d2: f64,
     new_track_density: f64,
@@ -163,7 +165,7 @@ impl Engine {
             MotionChoice::Imm => Imm::new(
                 &[
                     Motion::ConstantVelocity { accel_psd: t.quiet_accel_psd },
-                    Motion::CoordinatedTurn { accel_psd: t.manoeuvre_accel_psd, turn_psd: t.turn_rate_psd },
+                    Motion::CoordinatedTurn { accel_psd: t.turn_accel_psd, turn_psd: t.turn_rate_psd },
                     Motion::ConstantVelocity { accel_psd: t.manoeuvre_accel_psd },
                 ],
                 Switching::Sojourn(t.model_sojourn_s),
@@ -171,6 +173,10 @@ impl Engine {
             MotionChoice::Cv => Imm::new(&[Motion::ConstantVelocity { accel_psd: t.manoeuvre_accel_psd }], Switching::Sojourn(t.model_sojourn_s)),
         }
         .map_err(|e| EngineError::Setup { key: "tracking.model_sojourn_s".into(), message: e.to_string() })?;
+        let mu0 = match t.motion {
+            MotionChoice::Imm => imm::VESSEL_MU0.to_vec(),
+            MotionChoice::Cv => vec![1.0],
+        };
         let sensor_table = cfg.sensor_table();
         let sensor_names = cfg.sensors.iter().map(|s| Arc::<str>::from(s.id.as_str())).collect();
         let models = SensorModel::all(cfg, &site);
@@ -182,6 +188,7 @@ impl Engine {
             sensor_table,
             sensor_names,
             imm,
+            mu0,
             rules: Lifecycle { confirm_hits: t.confirm_hits, confirm_looks: t.confirm_looks, end_hits: t.end_hits, end_looks: t.end_looks },
             // Chi-square quantile with 2 degrees of freedom in closed form:
             // F(x) = 1 - exp(-x/2), so x = -2 ln(1 - p).
@@ -341,7 +348,7 @@ impl Engine {
         p[(3, 3)] = v2;
         p[(4, 4)] = INIT_TURN_SIGMA * INIT_TURN_SIGMA;
         let x = StateVec::new(z.x, z.y, 0.0, 0.0, 0.0);
-        let state = self.imm.init(Gaussian { x, p }, None);
+        let state = self.imm.init(Gaussian { x, p }, Some(&self.mu0));
         let mut t = Track::new(self.next_number, state, time, sensor);
         self.next_number += 1;
         self.stats.tracks_started += 1;
