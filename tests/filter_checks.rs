@@ -227,8 +227,8 @@ fn steady_state_gains_match_kalata() {
     }
 }
 
-/// The Joseph-form result equals the standard form (I − KH)P for the
-/// optimal gain, is exactly symmetric and positive definite; the
+/// The update equals the literal Joseph form (I − KH)P(I − KH)ᵀ + KRKᵀ
+/// and the standard form (I − KH)P for the optimal gain, is exactly symmetric and positive definite; the
 /// innovation's S⁻¹, d² and ln det S agree with the direct 2×2 formulas.
 /// Checked against: the textbook identity (BLK 2001 §5.2.3) and the
 /// definitions.
@@ -256,7 +256,10 @@ fn update_is_joseph_form_and_innovation_is_consistent() {
     let k = g.p.fixed_columns::<2>(0) * s_inv;
     let mut kh = StateCov::zeros();
     kh.fixed_columns_mut::<2>(0).copy_from(&k);
-    let standard = (StateCov::identity() - kh) * g.p;
+    let i_kh = StateCov::identity() - kh;
+    let joseph = i_kh * g.p * i_kh.transpose() + k * r * k.transpose();
+    assert_cov_close(&post.p, &joseph, 1e-14, "literal Joseph form");
+    let standard = i_kh * g.p;
     assert_cov_close(&post.p, &standard, 1e-12, "Joseph vs standard");
     assert!(Cholesky::new(post.p).is_some(), "posterior not positive definite");
 }

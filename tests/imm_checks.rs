@@ -317,35 +317,43 @@ fn vessel_default_follows_a_turn() {
     assert!((est.x.fixed_rows::<2>(0) - truth(t)).norm() < 20.0);
 }
 
-/// Cost of one IMM cycle of the vessel default (3 models). Run with
+/// Cost of the filter pieces and of the default (3-model) IMM. Run with
 /// `cargo test --release --test imm_checks -- --ignored --nocapture`.
 #[test]
 #[ignore]
-fn timing_of_one_cycle() {
-    let imm = Imm::vessel_default();
-    let g0 = Gaussian {
+fn timing_of_filter_pieces() {
+    use std::hint::black_box;
+    let g = Gaussian {
         x: StateVec::new(0.0, 0.0, 5.0, 1.0, 0.01),
         p: StateCov::from_diagonal(&StateVec::new(25.0, 25.0, 4.0, 4.0, 1e-4)),
     };
     let r = Matrix2::identity() * 25.0;
-    let mut s = imm.init(g0, Some(&VESSEL_MU0));
-    let n = 200_000;
-    let mut pred_ns = 0u128;
-    let start = std::time::Instant::now();
-    for k in 0..n {
-        let t0 = std::time::Instant::now();
-        let pred = imm.predict(std::hint::black_box(&s), 2.5);
-        pred_ns += t0.elapsed().as_nanos();
-        let z = Vector2::new(12.5 * (k % 100) as f64, 2.5 * (k % 100) as f64);
-        s = match imm.update(&pred, std::hint::black_box(&z), &r) {
-            Some((post, _)) => post,
-            None => imm.init(g0, None),
-        };
-        if k % 100 == 99 {
-            s = imm.init(g0, Some(&VESSEL_MU0));
+    let z = Vector2::new(3.0, -2.0);
+    // The machine is shared: report the fastest of many short batches,
+    // which is the cost without preemption by other processes.
+    let time = |what: &str, f: &dyn Fn() -> f64| {
+        let (batches, per_batch) = (300, 2_000);
+        let mut best = f64::INFINITY;
+        let mut acc = 0.0;
+        for _ in 0..batches {
+            let t0 = std::time::Instant::now();
+            for _ in 0..per_batch {
+                acc += f();
+            }
+            best = best.min(t0.elapsed().as_nanos() as f64 / per_batch as f64);
         }
-    }
-    let total = start.elapsed().as_nanos() as f64 / n as f64;
-    let pred = pred_ns as f64 / n as f64;
-    eprintln!("IMM (3 models): predict {pred:.0} ns, update {:.0} ns, cycle {total:.0} ns", total - pred);
+        eprintln!("{what}: {best:.0} ns (checksum {acc:e})");
+    };
+    let cv = Motion::ConstantVelocity { accel_psd: 0.02 };
+    let ct = Motion::CoordinatedTurn { accel_psd: 0.05, turn_psd: 1e-4 };
+    time("CV predict", &|| cv.predict(black_box(&g), black_box(2.5)).p[(0, 0)]);
+    time("CT predict", &|| ct.predict(black_box(&g), black_box(2.5)).p[(0, 0)]);
+    time("innovation", &|| innovation(black_box(&g), black_box(&z), &r).map_or(0.0, |i| i.d2));
+    time("update", &|| update(black_box(&g), black_box(&z), &r).map_or(0.0, |u| u.0.p[(0, 0)]));
+    let imm = Imm::vessel_default();
+    let s = imm.init(g, Some(&VESSEL_MU0));
+    let pred = imm.predict(&s, 2.5);
+    time("IMM predict", &|| imm.predict(black_box(&s), black_box(2.5)).mu[0]);
+    time("IMM update", &|| imm.update(black_box(&pred), black_box(&z), &r).map_or(0.0, |u| u.1));
+    time("IMM combine", &|| imm.combine(black_box(&pred)).p[(0, 0)]);
 }

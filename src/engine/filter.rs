@@ -258,13 +258,13 @@ pub fn innovation(g: &Gaussian, z: &Vector2<f64>, r: &Matrix2<f64>) -> Option<In
     let s = symmetric(g.p.fixed_view::<2, 2>(0, 0) + r);
     // 2×2 Cholesky by hand: S = L Lᵀ, L = [[l11, 0], [l21, l22]].
     let (a, b, d) = (s[(0, 0)], s[(1, 0)], s[(1, 1)]);
-    if !(a > 0.0) || !a.is_finite() {
+    if !a.is_finite() || a <= 0.0 {
         return None;
     }
     let l11 = a.sqrt();
     let l21 = b / l11;
     let schur = d - l21 * l21;
-    if !(schur > 0.0) || !schur.is_finite() {
+    if !schur.is_finite() || schur <= 0.0 {
         return None;
     }
     let l22 = schur.sqrt();
@@ -274,7 +274,7 @@ pub fn innovation(g: &Gaussian, z: &Vector2<f64>, r: &Matrix2<f64>) -> Option<In
     let y1 = nu[0] / l11;
     let y2 = (nu[1] - l21 * y1) / l22;
     let d2 = y1 * y1 + y2 * y2;
-    let ln_det_s = 2.0 * (l11.ln() + l22.ln());
+    let ln_det_s = det.ln();
     if !d2.is_finite() || !ln_det_s.is_finite() || !s_inv.iter().all(|v| v.is_finite()) {
         return None;
     }
@@ -291,15 +291,16 @@ pub fn update(g: &Gaussian, z: &Vector2<f64>, r: &Matrix2<f64>) -> Option<(Gauss
     let inn = innovation(g, z, r)?;
     let k = gain(g, &inn);
     let x = g.x + k * inn.nu;
-    // I − K H: H picks the first two states, so K H is K in the first two
-    // columns.
-    let mut i_kh = StateCov::identity();
-    let mut first_two = i_kh.fixed_columns_mut::<2>(0);
-    first_two -= k;
+    // Joseph form (I − KH) P (I − KH)ᵀ + K R Kᵀ: it stays positive
+    // semi-definite under rounding and for any gain (Bar-Shalom, Li &
+    // Kirubarajan 2001, §5.2.3). H picks the first two states, so
+    // (I − KH) M = M − K·(first two rows of M) and
+    // M (I − KH)ᵀ = M − (first two columns of M)·Kᵀ: the same products
+    // without multiplying by the zeros of KH.
     let r = symmetric(*r);
-    // Joseph form: stays positive semi-definite under rounding and for any
-    // gain (Bar-Shalom, Li & Kirubarajan 2001, §5.2.3).
-    let p = i_kh * g.p * i_kh.transpose() + k * r * k.transpose();
+    let a = g.p - k * g.p.fixed_rows::<2>(0);
+    let b = a - a.fixed_columns::<2>(0) * k.transpose();
+    let p = b + k * r * k.transpose();
     let out = Gaussian { x, p: symmetric(p) };
     if !out.x.iter().chain(out.p.iter()).all(|v| v.is_finite()) {
         return None;

@@ -100,8 +100,7 @@ impl Imm {
                 }
             }
             Switching::Sojourn(tau) => {
-                // `!(t > 0)` also rejects NaN.
-                if tau[..n].iter().any(|t| !(*t > 0.0)) {
+                if tau[..n].iter().any(|t| t.is_nan() || *t <= 0.0) {
                     return Err(ImmError::Sojourn);
                 }
             }
@@ -165,17 +164,14 @@ impl Imm {
                     out[i][..n].copy_from_slice(&m[i][..n]);
                 }
             }
+            Switching::Sojourn(_) if n == 1 => out[0][0] = 1.0,
             Switching::Sojourn(tau) => {
                 let dt = if dt.is_finite() && dt > 0.0 { dt } else { 0.0 };
-                for i in 0..n {
-                    if n == 1 {
-                        out[0][0] = 1.0;
-                        break;
-                    }
+                for (i, row) in out.iter_mut().enumerate().take(n) {
                     let stay = (-dt / tau[i]).exp();
                     let leave = (1.0 - stay) / (n - 1) as f64;
-                    for j in 0..n {
-                        out[i][j] = if i == j { stay } else { leave };
+                    for (j, p) in row.iter_mut().enumerate().take(n) {
+                        *p = if i == j { stay } else { leave };
                     }
                 }
             }
@@ -244,29 +240,25 @@ impl Imm {
         let n = self.n;
         let mut out = *pred;
         let mut log_w = [f64::NEG_INFINITY; MAX_MODELS];
-        for j in 0..n {
+        for ((comp, lw), mu) in out.comps.iter_mut().zip(&mut log_w).zip(pred.mu).take(n) {
             // A model that cannot take the measurement keeps its prediction
             // and drops to probability 0 for this scan.
-            if let Some((post, inn)) = kalman_update(&pred.comps[j], z, r) {
-                out.comps[j] = post;
-                log_w[j] = pred.mu[j].ln() + inn.log_likelihood();
+            if let Some((post, inn)) = kalman_update(comp, z, r) {
+                *comp = post;
+                *lw = mu.ln() + inn.log_likelihood();
             }
         }
         let max = log_w[..n].iter().copied().fold(f64::NEG_INFINITY, f64::max);
         if !max.is_finite() {
             return None;
         }
-        let mut w = [0.0; MAX_MODELS];
-        let mut sum = 0.0;
-        for j in 0..n {
-            w[j] = (log_w[j] - max).exp();
-            sum += w[j];
+        out.mu = [0.0; MAX_MODELS];
+        for (m, lw) in out.mu.iter_mut().zip(log_w).take(n) {
+            *m = (lw - max).exp();
         }
         // sum ≥ 1: the largest term is exp(0).
-        out.mu = [0.0; MAX_MODELS];
-        for j in 0..n {
-            out.mu[j] = w[j] / sum;
-        }
+        let sum: f64 = out.mu.iter().sum();
+        out.mu.iter_mut().for_each(|m| *m /= sum);
         Some((out, max + sum.ln()))
     }
 }
