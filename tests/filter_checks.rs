@@ -230,7 +230,8 @@ fn steady_state_gains_match_kalata() {
 /// The update equals the literal Joseph form (I − KH)P(I − KH)ᵀ + KRKᵀ
 /// and the standard form (I − KH)P for the optimal gain, is exactly symmetric and positive definite; the
 /// innovation's S⁻¹, d² and ln det S agree with the direct 2×2 formulas.
-/// Checked against: the textbook identity (BLK 2001 §5.2.3) and the
+/// Checked against: the textbook identity (BLK 2001 §5.2.3, section from
+/// memory) and the
 /// definitions.
 #[test]
 fn update_is_joseph_form_and_innovation_is_consistent() {
@@ -280,7 +281,9 @@ fn bad_measurements_are_rejected() {
 // Monte Carlo consistency (BLK 2001 §5.4.2). The truth is simulated from the
 // continuous-time definition of each motion model by sub-stepping (white
 // noise as piecewise-constant draws over 1/50 of the interval), not from
-// skerry's discretised Q, so these also check the discretisation.
+// skerry's discretised Q, so the truth does not inherit a mistake in it
+// (the Q itself is pinned by the filterpy fixtures; NEES alone would not
+// notice every error in it, e.g. a position variance 1.5× too large).
 
 const SUBSTEPS: usize = 50;
 

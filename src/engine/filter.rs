@@ -130,7 +130,7 @@ pub fn cwna_noise(dt: f64, q: f64) -> StateCov {
 /// Discrete white-noise acceleration ("piecewise constant acceleration")
 /// process noise with acceleration variance `accel_var` (m²/s⁴):
 /// `Γ σ² Γᵀ` with `Γ = [dt²/2, dt]` per axis (Bar-Shalom, Li &
-/// Kirubarajan 2001, §6.3.3). The CV model uses [`cwna_noise`]; this one is
+/// Kirubarajan 2001, §6.3.3, section from memory). The CV model uses [`cwna_noise`]; this one is
 /// the model of the classical α-β steady-state relations and is exposed
 /// for filters that want it with [`predict_linear`].
 pub fn dwna_noise(dt: f64, accel_var: f64) -> StateCov {
@@ -293,7 +293,7 @@ pub fn update(g: &Gaussian, z: &Vector2<f64>, r: &Matrix2<f64>) -> Option<(Gauss
     let x = g.x + k * inn.nu;
     // Joseph form (I − KH) P (I − KH)ᵀ + K R Kᵀ: it stays positive
     // semi-definite under rounding and for any gain (Bar-Shalom, Li &
-    // Kirubarajan 2001, §5.2.3). H picks the first two states, so
+    // Kirubarajan 2001, §5.2.3, section from memory). H picks the first two states, so
     // (I − KH) M = M − K·(first two rows of M) and
     // M (I − KH)ᵀ = M − (first two columns of M)·Kᵀ: the same products
     // without multiplying by the zeros of KH.

@@ -117,7 +117,7 @@ impl Imm {
     ///    Over a 3 s scan the velocity wanders by √(qT) ≈ 0.25 m/s,
     ///    which covers wind, current and helm noise of ships and most
     ///    small craft (the usual sizing √(qT) ≈ typical velocity change per
-    ///    scan, BLK 2001 §6.2.2; values common practice).
+    ///    scan, BLK 2001 §6.2.2, from memory; values common practice).
     /// 1. CT, `accel_psd` 0.05 m²/s³ and `turn_psd` 1e-4 rad²/s³: the turn
     ///    rate random-walks by √(1e-4·3) ≈ 0.017 rad/s (1°/s) per 3 s scan
     ///    and ≈ 2.2°/s over 15 s, so a turn of up to ~3°/s (fast boats;
