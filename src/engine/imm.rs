@@ -107,7 +107,11 @@ impl Imm {
         }
         let mut all = [models[0]; MAX_MODELS];
         all[..n].copy_from_slice(models);
-        Ok(Imm { models: all, n, switching })
+        Ok(Imm {
+            models: all,
+            n,
+            switching,
+        })
     }
 
     /// A default IMM for vessels seen by a harbour or coastal radar, in
@@ -134,10 +138,17 @@ impl Imm {
     pub fn vessel_default() -> Imm {
         let models = [
             Motion::ConstantVelocity { accel_psd: 0.02 },
-            Motion::CoordinatedTurn { accel_psd: 0.05, turn_psd: 1e-4 },
+            Motion::CoordinatedTurn {
+                accel_psd: 0.05,
+                turn_psd: 1e-4,
+            },
             Motion::ConstantVelocity { accel_psd: 0.5 },
         ];
-        Imm { models, n: 3, switching: Switching::Sojourn([60.0, 20.0, 15.0]) }
+        Imm {
+            models,
+            n: 3,
+            switching: Switching::Sojourn([60.0, 20.0, 15.0]),
+        }
     }
 
     pub fn n_models(&self) -> usize {
@@ -200,7 +211,10 @@ impl Imm {
             mu = [0.0; MAX_MODELS];
             mu[..n].iter_mut().for_each(|m| *m = 1.0 / n as f64);
         }
-        ImmState { comps: [g; MAX_MODELS], mu }
+        ImmState {
+            comps: [g; MAX_MODELS],
+            mu,
+        }
     }
 
     /// Mixing, then each model's prediction over `dt` seconds.
@@ -218,7 +232,11 @@ impl Imm {
             // mixture will do for its prior; the current μ is used.
             let mut w = [0.0; MAX_MODELS];
             for i in 0..n {
-                w[i] = if cbar[j] > 0.0 { pi[i][j] * s.mu[i] / cbar[j] } else { s.mu[i] };
+                w[i] = if cbar[j] > 0.0 {
+                    pi[i][j] * s.mu[i] / cbar[j]
+                } else {
+                    s.mu[i]
+                };
             }
             let mixed = moment_match(&s.comps[..n], &w[..n]);
             out.comps[j] = self.models[j].predict(&mixed, dt);
@@ -236,7 +254,12 @@ impl Imm {
     /// and the model probabilities with their likelihoods. Returns the new
     /// state and the mixture's log-likelihood ln Σ μ_j N_j; `None` if no
     /// model could be updated.
-    pub fn update(&self, pred: &ImmState, z: &Vector2<f64>, r: &Matrix2<f64>) -> Option<(ImmState, f64)> {
+    pub fn update(
+        &self,
+        pred: &ImmState,
+        z: &Vector2<f64>,
+        r: &Matrix2<f64>,
+    ) -> Option<(ImmState, f64)> {
         let n = self.n;
         let mut out = *pred;
         let mut log_w = [f64::NEG_INFINITY; MAX_MODELS];
@@ -278,7 +301,10 @@ fn moment_match(comps: &[Gaussian], w: &[f64]) -> Gaussian {
         let d = c.x - x;
         p += (c.p + d * d.transpose()) * wi;
     }
-    Gaussian { x, p: (p + p.transpose()) * 0.5 }
+    Gaussian {
+        x,
+        p: (p + p.transpose()) * 0.5,
+    }
 }
 
 fn normalized(mut mu: [f64; MAX_MODELS], n: usize) -> [f64; MAX_MODELS] {
