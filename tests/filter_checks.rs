@@ -12,7 +12,8 @@ use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use rand_distr::StandardNormal;
 use skerry::engine::filter::{
-    Gaussian, Motion, StateCov, StateVec, cv_transition, dwna_noise, gain, innovation, predict_linear, update,
+    Gaussian, Motion, StateCov, StateVec, cv_transition, dwna_noise, gain, innovation,
+    predict_linear, update,
 };
 
 /// Fixture agreement: "~1e-9 relative" (brief); the observed agreement is
@@ -24,24 +25,46 @@ fn run_fixture_case(case: &serde_json::Value, model: Motion) {
     for (k, step) in case["steps"].as_array().expect("steps").iter().enumerate() {
         let prior = model.predict(&g, num(&step["dt"]));
         let want_p = cov(&step["p_prior"]);
-        assert_state_close(&prior.x, &state(&step["x_prior"]), &want_p, FIXTURE_TOL, &format!("step {k} x_prior"));
+        assert_state_close(
+            &prior.x,
+            &state(&step["x_prior"]),
+            &want_p,
+            FIXTURE_TOL,
+            &format!("step {k} x_prior"),
+        );
         assert_cov_close(&prior.p, &want_p, FIXTURE_TOL, &format!("step {k} p_prior"));
         assert_symmetric(&prior.p, "prior");
 
         let (z, r) = (v2(&step["z"]), m2(&step["r"]));
         let (post, inn) = update(&prior, &z, &r).expect("update");
         let want_p = cov(&step["p_post"]);
-        assert_state_close(&post.x, &state(&step["x_post"]), &want_p, FIXTURE_TOL, &format!("step {k} x_post"));
+        assert_state_close(
+            &post.x,
+            &state(&step["x_post"]),
+            &want_p,
+            FIXTURE_TOL,
+            &format!("step {k} x_post"),
+        );
         assert_cov_close(&post.p, &want_p, FIXTURE_TOL, &format!("step {k} p_post"));
         assert_symmetric(&post.p, "posterior");
         let want_s = m2(&step["s"]);
         assert_cov_close(&inn.s, &want_s, FIXTURE_TOL, &format!("step {k} S"));
         let want_nu = v2(&step["nu"]);
         for i in 0..2 {
-            assert_rel(inn.nu[i], want_nu[i], FIXTURE_TOL * want_s[(i, i)].sqrt(), &format!("step {k} nu"));
+            assert_rel(
+                inn.nu[i],
+                want_nu[i],
+                FIXTURE_TOL * want_s[(i, i)].sqrt(),
+                &format!("step {k} nu"),
+            );
         }
         // filterpy: scipy.stats.multivariate_normal.logpdf(ν; 0, S).
-        assert_rel(inn.log_likelihood(), num(&step["log_likelihood"]), FIXTURE_TOL, &format!("step {k} ln N"));
+        assert_rel(
+            inn.log_likelihood(),
+            num(&step["log_likelihood"]),
+            FIXTURE_TOL,
+            &format!("step {k} ln N"),
+        );
         g = post;
     }
 }
@@ -55,7 +78,12 @@ fn run_fixture_case(case: &serde_json::Value, model: Motion) {
 fn cv_matches_filterpy_kalman_filter() {
     let fx = fixture("filter_cases.json");
     let case = &fx["kf_cv"];
-    run_fixture_case(case, Motion::ConstantVelocity { accel_psd: num(&case["accel_psd"]) });
+    run_fixture_case(
+        case,
+        Motion::ConstantVelocity {
+            accel_psd: num(&case["accel_psd"]),
+        },
+    );
 }
 
 /// The CT EKF through a straight leg (|ωT| < 0.1: the series branch) and a
@@ -69,7 +97,10 @@ fn ct_matches_filterpy_extended_kalman_filter() {
     let case = &fx["ekf_ct"];
     run_fixture_case(
         case,
-        Motion::CoordinatedTurn { accel_psd: num(&case["accel_psd"]), turn_psd: num(&case["turn_psd"]) },
+        Motion::CoordinatedTurn {
+            accel_psd: num(&case["accel_psd"]),
+            turn_psd: num(&case["turn_psd"]),
+        },
     );
 }
 
@@ -79,7 +110,10 @@ fn ct_matches_filterpy_extended_kalman_filter() {
 #[test]
 fn ct_jacobian_matches_sympy() {
     let fx = fixture("filter_cases.json");
-    let ct = Motion::CoordinatedTurn { accel_psd: 0.0, turn_psd: 0.0 };
+    let ct = Motion::CoordinatedTurn {
+        accel_psd: 0.0,
+        turn_psd: 0.0,
+    };
     for pt in fx["ct_jacobian"].as_array().expect("points") {
         let (x, dt) = (state(&pt["x"]), num(&pt["dt"]));
         let (mean, jac) = ct.transition(&x, dt);
@@ -88,10 +122,22 @@ fn ct_jacobian_matches_sympy() {
             let row_scale = (0..5).map(|j| want_jac[(i, j)].abs()).fold(0.0, f64::max);
             for j in 0..5 {
                 let err = (jac[(i, j)] - want_jac[(i, j)]).abs();
-                assert!(err <= 1e-12 * row_scale, "ω={} dt={dt} J[{i},{j}]: {} vs {}", x[4], jac[(i, j)], want_jac[(i, j)]);
+                assert!(
+                    err <= 1e-12 * row_scale,
+                    "ω={} dt={dt} J[{i},{j}]: {} vs {}",
+                    x[4],
+                    jac[(i, j)],
+                    want_jac[(i, j)]
+                );
             }
             let err = (mean[i] - want_mean[i]).abs();
-            assert!(err <= 1e-13 * want_mean[i].abs().max(1.0), "ω={} dt={dt} f[{i}]: {} vs {}", x[4], mean[i], want_mean[i]);
+            assert!(
+                err <= 1e-13 * want_mean[i].abs().max(1.0),
+                "ω={} dt={dt} f[{i}]: {} vs {}",
+                x[4],
+                mean[i],
+                want_mean[i]
+            );
         }
     }
 }
@@ -102,7 +148,10 @@ fn ct_jacobian_matches_sympy() {
 /// the derivative; step 1e-6 in each state, error O(h²)).
 #[test]
 fn ct_jacobian_matches_central_differences() {
-    let ct = Motion::CoordinatedTurn { accel_psd: 0.0, turn_psd: 0.0 };
+    let ct = Motion::CoordinatedTurn {
+        accel_psd: 0.0,
+        turn_psd: 0.0,
+    };
     for &w in &[0.0, 1e-12, -0.02, 0.05, 0.6] {
         for &dt in &[1.0, 3.0] {
             let x = StateVec::new(50.0, -20.0, 7.0, -2.5, w);
@@ -116,7 +165,12 @@ fn ct_jacobian_matches_central_differences() {
                 let d = (ct.transition(&hi, dt).0 - ct.transition(&lo, dt).0) / (2.0 * h);
                 for i in 0..5 {
                     let err = (jac[(i, j)] - d[i]).abs();
-                    assert!(err <= 1e-6 * (1.0 + d[i].abs()), "ω={w} dt={dt} J[{i},{j}]: {} vs {}", jac[(i, j)], d[i]);
+                    assert!(
+                        err <= 1e-6 * (1.0 + d[i].abs()),
+                        "ω={w} dt={dt} J[{i},{j}]: {} vs {}",
+                        jac[(i, j)],
+                        d[i]
+                    );
                 }
             }
         }
@@ -133,9 +187,16 @@ fn ct_at_zero_turn_rate_is_cv() {
     p[(2, 0)] = 5.0;
     p[(1, 3)] = -3.0;
     p[(3, 1)] = -3.0;
-    let g = Gaussian { x: StateVec::new(10.0, 20.0, 3.0, -4.0, 0.0), p };
+    let g = Gaussian {
+        x: StateVec::new(10.0, 20.0, 3.0, -4.0, 0.0),
+        p,
+    };
     let cv = Motion::ConstantVelocity { accel_psd: 0.1 }.predict(&g, 2.5);
-    let ct = Motion::CoordinatedTurn { accel_psd: 0.1, turn_psd: 0.0 }.predict(&g, 2.5);
+    let ct = Motion::CoordinatedTurn {
+        accel_psd: 0.1,
+        turn_psd: 0.0,
+    }
+    .predict(&g, 2.5);
     assert_state_close(&ct.x, &cv.x, &cv.p, 1e-14, "mean");
     assert_cov_close(&ct.p, &cv.p, 1e-14, "covariance");
 }
@@ -147,7 +208,10 @@ fn ct_at_zero_turn_rate_is_cv() {
 /// Checked against: circle geometry (definition of a constant-rate turn).
 #[test]
 fn ct_turn_geometry() {
-    let ct = Motion::CoordinatedTurn { accel_psd: 0.0, turn_psd: 0.0 };
+    let ct = Motion::CoordinatedTurn {
+        accel_psd: 0.0,
+        turn_psd: 0.0,
+    };
     let (v, w) = (6.0, 0.05);
     let x = StateVec::new(0.0, 0.0, v, 0.0, w);
     let period = 2.0 * std::f64::consts::PI / w;
@@ -155,8 +219,16 @@ fn ct_turn_geometry() {
     let expect_half = StateVec::new(0.0, 2.0 * v / w, -v, 0.0, w);
     let (full, _) = ct.transition(&x, period);
     for i in 0..5 {
-        assert!((half[i] - expect_half[i]).abs() < 1e-12 * 240.0, "half turn [{i}]: {}", half[i]);
-        assert!((full[i] - x[i]).abs() < 1e-12 * 240.0, "full turn [{i}]: {}", full[i]);
+        assert!(
+            (half[i] - expect_half[i]).abs() < 1e-12 * 240.0,
+            "half turn [{i}]: {}",
+            half[i]
+        );
+        assert!(
+            (full[i] - x[i]).abs() < 1e-12 * 240.0,
+            "full turn [{i}]: {}",
+            full[i]
+        );
     }
     // A quarter turn in small steps lands where one long step does.
     let mut g = x;
@@ -171,8 +243,17 @@ fn ct_turn_geometry() {
 /// A negative or non-finite interval predicts nothing (interval 0).
 #[test]
 fn non_positive_interval_is_zero() {
-    let g = Gaussian { x: StateVec::new(1.0, 2.0, 3.0, 4.0, 0.01), p: StateCov::identity() };
-    for m in [Motion::ConstantVelocity { accel_psd: 1.0 }, Motion::CoordinatedTurn { accel_psd: 1.0, turn_psd: 0.1 }] {
+    let g = Gaussian {
+        x: StateVec::new(1.0, 2.0, 3.0, 4.0, 0.01),
+        p: StateCov::identity(),
+    };
+    for m in [
+        Motion::ConstantVelocity { accel_psd: 1.0 },
+        Motion::CoordinatedTurn {
+            accel_psd: 1.0,
+            turn_psd: 0.1,
+        },
+    ] {
         assert_eq!(m.predict(&g, -3.0), m.predict(&g, 0.0));
         assert_eq!(m.predict(&g, f64::NAN), m.predict(&g, 0.0));
     }
@@ -187,7 +268,10 @@ fn non_positive_interval_is_zero() {
 /// with them to ≤ 1e-13.
 fn kalata(lam: f64) -> (f64, f64) {
     let r = (lam * lam + 8.0 * lam).sqrt();
-    (-(lam * lam + 8.0 * lam - (lam + 4.0) * r) / 8.0, (lam * lam + 4.0 * lam - lam * r) / 4.0)
+    (
+        -(lam * lam + 8.0 * lam - (lam + 4.0) * r) / 8.0,
+        (lam * lam + 4.0 * lam - lam * r) / 4.0,
+    )
 }
 
 /// The CV Kalman filter with discrete white-noise acceleration Q run to
@@ -198,12 +282,19 @@ fn kalata(lam: f64) -> (f64, f64) {
 fn steady_state_gains_match_kalata() {
     let fx = fixture("filter_cases.json");
     for case in fx["alpha_beta_dare"].as_array().expect("cases") {
-        let (lam, t, sw) = (num(&case["tracking_index"]), num(&case["dt"]), num(&case["sigma_w"]));
+        let (lam, t, sw) = (
+            num(&case["tracking_index"]),
+            num(&case["dt"]),
+            num(&case["sigma_w"]),
+        );
         let sa = lam * sw / (t * t);
         let (f, q) = (cv_transition(t), dwna_noise(t, sa * sa));
         let r = Matrix2::identity() * (sw * sw);
         let z = Vector2::zeros();
-        let mut g = Gaussian { x: StateVec::zeros(), p: StateCov::from_diagonal(&StateVec::new(1e4, 1e4, 1e2, 1e2, 0.0)) };
+        let mut g = Gaussian {
+            x: StateVec::zeros(),
+            p: StateCov::from_diagonal(&StateVec::new(1e4, 1e4, 1e2, 1e2, 0.0)),
+        };
         let (mut alpha, mut beta) = (f64::NAN, f64::NAN);
         for _ in 0..200_000 {
             let prior = predict_linear(&g, &f, &q);
@@ -220,17 +311,30 @@ fn steady_state_gains_match_kalata() {
             }
         }
         let (ka, kb) = kalata(lam);
-        assert!((alpha - ka).abs() <= 1e-6 * ka, "Λ={lam}: α {alpha} vs Kalata {ka}");
-        assert!((beta - kb).abs() <= 1e-6 * kb, "Λ={lam}: β {beta} vs Kalata {kb}");
-        assert!((alpha - num(&case["alpha"])).abs() <= 1e-9, "Λ={lam}: α vs DARE");
-        assert!((beta - num(&case["beta"])).abs() <= 1e-9, "Λ={lam}: β vs DARE");
+        assert!(
+            (alpha - ka).abs() <= 1e-6 * ka,
+            "Λ={lam}: α {alpha} vs Kalata {ka}"
+        );
+        assert!(
+            (beta - kb).abs() <= 1e-6 * kb,
+            "Λ={lam}: β {beta} vs Kalata {kb}"
+        );
+        assert!(
+            (alpha - num(&case["alpha"])).abs() <= 1e-9,
+            "Λ={lam}: α vs DARE"
+        );
+        assert!(
+            (beta - num(&case["beta"])).abs() <= 1e-9,
+            "Λ={lam}: β vs DARE"
+        );
     }
 }
 
-/// The Joseph-form result equals the standard form (I − KH)P for the
-/// optimal gain, is exactly symmetric and positive definite; the
+/// The update equals the literal Joseph form (I − KH)P(I − KH)ᵀ + KRKᵀ
+/// and the standard form (I − KH)P for the optimal gain, is exactly symmetric and positive definite; the
 /// innovation's S⁻¹, d² and ln det S agree with the direct 2×2 formulas.
-/// Checked against: the textbook identity (BLK 2001 §5.2.3) and the
+/// Checked against: the textbook identity (BLK 2001 §5.2.3, section from
+/// memory) and the
 /// definitions.
 #[test]
 fn update_is_joseph_form_and_innovation_is_consistent() {
@@ -241,7 +345,10 @@ fn update_is_joseph_form_and_innovation_is_consistent() {
     p[(2, 0)] = 30.0;
     p[(1, 4)] = 0.05;
     p[(4, 1)] = 0.05;
-    let g = Gaussian { x: StateVec::new(5.0, -3.0, 2.0, 1.0, 0.02), p };
+    let g = Gaussian {
+        x: StateVec::new(5.0, -3.0, 2.0, 1.0, 0.02),
+        p,
+    };
     let r = Matrix2::new(50.0, -12.0, -12.0, 30.0);
     let z = Vector2::new(17.0, -25.0);
     let (post, inn) = update(&g, &z, &r).expect("update");
@@ -256,28 +363,46 @@ fn update_is_joseph_form_and_innovation_is_consistent() {
     let k = g.p.fixed_columns::<2>(0) * s_inv;
     let mut kh = StateCov::zeros();
     kh.fixed_columns_mut::<2>(0).copy_from(&k);
-    let standard = (StateCov::identity() - kh) * g.p;
+    let i_kh = StateCov::identity() - kh;
+    let joseph = i_kh * g.p * i_kh.transpose() + k * r * k.transpose();
+    assert_cov_close(&post.p, &joseph, 1e-14, "literal Joseph form");
+    let standard = i_kh * g.p;
     assert_cov_close(&post.p, &standard, 1e-12, "Joseph vs standard");
-    assert!(Cholesky::new(post.p).is_some(), "posterior not positive definite");
+    assert!(
+        Cholesky::new(post.p).is_some(),
+        "posterior not positive definite"
+    );
 }
 
 /// Bad input gives `None`, never a panic.
 #[test]
 fn bad_measurements_are_rejected() {
-    let g = Gaussian { x: StateVec::zeros(), p: StateCov::identity() };
+    let g = Gaussian {
+        x: StateVec::zeros(),
+        p: StateCov::identity(),
+    };
     let r = Matrix2::identity();
     assert!(update(&g, &Vector2::new(f64::NAN, 0.0), &r).is_none());
     assert!(update(&g, &Vector2::new(f64::INFINITY, 0.0), &r).is_none());
     assert!(update(&g, &Vector2::zeros(), &Matrix2::new(-5.0, 0.0, 0.0, 1.0)).is_none());
     assert!(update(&g, &Vector2::zeros(), &Matrix2::new(1.0, 3.0, 3.0, 1.0)).is_none());
-    assert!(innovation(&g, &Vector2::zeros(), &Matrix2::new(f64::NAN, 0.0, 0.0, 1.0)).is_none());
+    assert!(
+        innovation(
+            &g,
+            &Vector2::zeros(),
+            &Matrix2::new(f64::NAN, 0.0, 0.0, 1.0)
+        )
+        .is_none()
+    );
 }
 
 // ---------------------------------------------------------------------------
 // Monte Carlo consistency (BLK 2001 §5.4.2). The truth is simulated from the
 // continuous-time definition of each motion model by sub-stepping (white
 // noise as piecewise-constant draws over 1/50 of the interval), not from
-// skerry's discretised Q, so these also check the discretisation.
+// skerry's discretised Q, so the truth does not inherit a mistake in it
+// (the Q itself is pinned by the filterpy fixtures; NEES alone would not
+// notice every error in it, e.g. a position variance 1.5× too large).
 
 const SUBSTEPS: usize = 50;
 
@@ -319,8 +444,17 @@ struct Bounds {
 
 fn bounds(name: &str) -> Bounds {
     let fx = fixture("nees_bounds.json");
-    let case = fx["cases"].as_array().expect("cases").iter().find(|c| c["name"] == name).expect("case");
-    Bounds { runs: num(&case["runs"]) as usize, lo: num(&case["lo"]), hi: num(&case["hi"]) }
+    let case = fx["cases"]
+        .as_array()
+        .expect("cases")
+        .iter()
+        .find(|c| c["name"] == name)
+        .expect("case");
+    Bounds {
+        runs: num(&case["runs"]) as usize,
+        lo: num(&case["lo"]),
+        hi: num(&case["hi"]),
+    }
 }
 
 /// Per-step N-run averages of a χ² statistic: the overall average must lie
@@ -328,11 +462,28 @@ fn bounds(name: &str) -> Bounds {
 /// so this is conservative) and at least 90 % of the steps must (95 %
 /// expected).
 fn assert_consistent(per_step: &[f64], b: &Bounds, what: &str) {
-    let inside = per_step.iter().filter(|a| (b.lo..=b.hi).contains(*a)).count();
+    let inside = per_step
+        .iter()
+        .filter(|a| (b.lo..=b.hi).contains(*a))
+        .count();
     let mean = per_step.iter().sum::<f64>() / per_step.len() as f64;
-    eprintln!("{what}: mean {mean:.3} in [{:.3}, {:.3}]; {inside}/{} steps inside", b.lo, b.hi, per_step.len());
-    assert!((b.lo..=b.hi).contains(&mean), "{what}: mean {mean} outside [{}, {}]", b.lo, b.hi);
-    assert!(inside as f64 >= 0.9 * per_step.len() as f64, "{what}: only {inside}/{} steps inside", per_step.len());
+    eprintln!(
+        "{what}: mean {mean:.3} in [{:.3}, {:.3}]; {inside}/{} steps inside",
+        b.lo,
+        b.hi,
+        per_step.len()
+    );
+    assert!(
+        (b.lo..=b.hi).contains(&mean),
+        "{what}: mean {mean} outside [{}, {}]",
+        b.lo,
+        b.hi
+    );
+    assert!(
+        inside as f64 >= 0.9 * per_step.len() as f64,
+        "{what}: only {inside}/{} steps inside",
+        per_step.len()
+    );
 }
 
 fn nees<const N: usize>(e: &SMatrix<f64, N, 1>, p: &SMatrix<f64, N, N>) -> f64 {
@@ -366,7 +517,10 @@ impl Experiment {
         let r = Matrix2::new(100.0, 30.0, 30.0, 64.0);
         let r_chol = Cholesky::new(r).expect("R").l();
         let mut rng = ChaCha8Rng::seed_from_u64(seed);
-        let mut out = Run { nees: vec![0.0; self.steps], nis: vec![0.0; self.steps] };
+        let mut out = Run {
+            nees: vec![0.0; self.steps],
+            nis: vec![0.0; self.steps],
+        };
         for _ in 0..runs {
             let mut truth = draw_initial(&self.truth0, &mut rng);
             let mut g = self.filter0;
@@ -378,7 +532,10 @@ impl Experiment {
                 g = post;
                 let e = truth - g.x;
                 let eps = if self.four_states {
-                    nees::<4>(&Vector4::from_fn(|i, _| e[i]), &Matrix4::from_fn(|i, j| g.p[(i, j)]))
+                    nees::<4>(
+                        &Vector4::from_fn(|i, _| e[i]),
+                        &Matrix4::from_fn(|i, j| g.p[(i, j)]),
+                    )
                 } else {
                     nees::<5>(&e, &g.p)
                 };
@@ -432,7 +589,10 @@ fn turning_start() -> Gaussian {
 fn ct_nees_is_consistent_on_turning_target() {
     let b = bounds("ct_nees");
     let (q, qw) = (0.05, 1e-5);
-    let model = Motion::CoordinatedTurn { accel_psd: q, turn_psd: qw };
+    let model = Motion::CoordinatedTurn {
+        accel_psd: q,
+        turn_psd: qw,
+    };
     let exp = Experiment {
         model,
         filter0: turning_start(),
@@ -467,6 +627,12 @@ fn cv_nees_fails_on_turning_target() {
     };
     let per_step = exp.run(13, b.runs).nees;
     let mean = per_step.iter().sum::<f64>() / per_step.len() as f64;
-    eprintln!("mismatched CV NEES: mean {mean:.1} vs upper bound {:.3}", b.hi);
-    assert!(mean > 3.0 * b.hi, "mismatched CV filter looks consistent: mean NEES {mean}");
+    eprintln!(
+        "mismatched CV NEES: mean {mean:.1} vs upper bound {:.3}",
+        b.hi
+    );
+    assert!(
+        mean > 3.0 * b.hi,
+        "mismatched CV filter looks consistent: mean NEES {mean}"
+    );
 }

@@ -18,8 +18,13 @@ const FIXTURE_TOL: f64 = 1e-9;
 
 fn motion(v: &serde_json::Value) -> Motion {
     match v["kind"].as_str() {
-        Some("cv") => Motion::ConstantVelocity { accel_psd: num(&v["accel_psd"]) },
-        Some("ct") => Motion::CoordinatedTurn { accel_psd: num(&v["accel_psd"]), turn_psd: num(&v["turn_psd"]) },
+        Some("cv") => Motion::ConstantVelocity {
+            accel_psd: num(&v["accel_psd"]),
+        },
+        Some("ct") => Motion::CoordinatedTurn {
+            accel_psd: num(&v["accel_psd"]),
+            turn_psd: num(&v["turn_psd"]),
+        },
         other => panic!("unknown model {other:?}"),
     }
 }
@@ -29,30 +34,56 @@ fn assert_mu(got: &[f64], want: &serde_json::Value, what: &str) {
     assert_eq!(want.len(), got.len());
     for (j, (g, w)) in got.iter().zip(want).enumerate() {
         let w = num(w);
-        assert!((g - w).abs() <= FIXTURE_TOL * w.abs() + 1e-15, "{what}[{j}]: got {g:e}, want {w:e}");
+        assert!(
+            (g - w).abs() <= FIXTURE_TOL * w.abs() + 1e-15,
+            "{what}[{j}]: got {g:e}, want {w:e}"
+        );
     }
 }
 
 fn run_imm_case(case: &serde_json::Value, imm: &Imm) {
     let n = imm.n_models();
-    let mu0: Vec<f64> = case["mu0"].as_array().expect("mu0").iter().map(num).collect();
+    let mu0: Vec<f64> = case["mu0"]
+        .as_array()
+        .expect("mu0")
+        .iter()
+        .map(num)
+        .collect();
     let mut s = imm.init(gaussian(&case["x0"], &case["p0"]), Some(&mu0));
     for (k, step) in case["steps"].as_array().expect("steps").iter().enumerate() {
         let pred = imm.predict(&s, num(&step["dt"]));
         for j in 0..n {
             let want_p = cov(&step["prior_p"][j]);
             let what = format!("step {k} model {j} prior");
-            assert_state_close(&pred.comps[j].x, &state(&step["prior_x"][j]), &want_p, FIXTURE_TOL, &what);
+            assert_state_close(
+                &pred.comps[j].x,
+                &state(&step["prior_x"][j]),
+                &want_p,
+                FIXTURE_TOL,
+                &what,
+            );
             assert_cov_close(&pred.comps[j].p, &want_p, FIXTURE_TOL, &what);
             assert_symmetric(&pred.comps[j].p, &what);
         }
-        assert_mu(&pred.mu[..n], &step["prior_mu"], &format!("step {k} predicted mu"));
+        assert_mu(
+            &pred.mu[..n],
+            &step["prior_mu"],
+            &format!("step {k} predicted mu"),
+        );
 
-        let (post, ll) = imm.update(&pred, &v2(&step["z"]), &m2(&step["r"])).expect("update");
+        let (post, ll) = imm
+            .update(&pred, &v2(&step["z"]), &m2(&step["r"]))
+            .expect("update");
         for j in 0..n {
             let want_p = cov(&step["post_p"][j]);
             let what = format!("step {k} model {j} posterior");
-            assert_state_close(&post.comps[j].x, &state(&step["post_x"][j]), &want_p, FIXTURE_TOL, &what);
+            assert_state_close(
+                &post.comps[j].x,
+                &state(&step["post_x"][j]),
+                &want_p,
+                FIXTURE_TOL,
+                &what,
+            );
             assert_cov_close(&post.comps[j].p, &want_p, FIXTURE_TOL, &what);
             assert_symmetric(&post.comps[j].p, &what);
         }
@@ -60,10 +91,21 @@ fn run_imm_case(case: &serde_json::Value, imm: &Imm) {
         assert!((post.mu[..n].iter().sum::<f64>() - 1.0).abs() < 1e-15);
         let comb = imm.combine(&post);
         let want_p = cov(&step["combined_p"]);
-        assert_state_close(&comb.x, &state(&step["combined_x"]), &want_p, FIXTURE_TOL, &format!("step {k} combined"));
+        assert_state_close(
+            &comb.x,
+            &state(&step["combined_x"]),
+            &want_p,
+            FIXTURE_TOL,
+            &format!("step {k} combined"),
+        );
         assert_cov_close(&comb.p, &want_p, FIXTURE_TOL, &format!("step {k} combined"));
         assert_symmetric(&comb.p, "combined");
-        assert_rel(ll, num(&step["log_likelihood"]), FIXTURE_TOL, &format!("step {k} mixture ln-likelihood"));
+        assert_rel(
+            ll,
+            num(&step["log_likelihood"]),
+            FIXTURE_TOL,
+            &format!("step {k} mixture ln-likelihood"),
+        );
         s = post;
     }
 }
@@ -76,7 +118,12 @@ fn run_imm_case(case: &serde_json::Value, imm: &Imm) {
 fn fixed_switching_matches_filterpy_imm() {
     let fx = fixture("imm_cases.json");
     let case = &fx["fixed_cv3"];
-    let models: Vec<Motion> = case["models"].as_array().expect("models").iter().map(motion).collect();
+    let models: Vec<Motion> = case["models"]
+        .as_array()
+        .expect("models")
+        .iter()
+        .map(motion)
+        .collect();
     let rows = case["transition"].as_array().expect("transition");
     let mut m = [[0.0; MAX_MODELS]; MAX_MODELS];
     for (i, row) in rows.iter().enumerate() {
@@ -97,13 +144,26 @@ fn fixed_switching_matches_filterpy_imm() {
 fn sojourn_switching_matches_filterpy_imm() {
     let fx = fixture("imm_cases.json");
     let case = &fx["sojourn_cv_ct_cv"];
-    let models: Vec<Motion> = case["models"].as_array().expect("models").iter().map(motion).collect();
+    let models: Vec<Motion> = case["models"]
+        .as_array()
+        .expect("models")
+        .iter()
+        .map(motion)
+        .collect();
     let tau = case["sojourn"].as_array().expect("sojourn");
     let tau = [num(&tau[0]), num(&tau[1]), num(&tau[2])];
     let imm = Imm::new(&models, Switching::Sojourn(tau)).expect("imm");
     // The fixture uses the documented default vessel models and times.
     assert_eq!(imm, Imm::vessel_default());
-    assert_eq!(&case["mu0"].as_array().expect("mu0").iter().map(num).collect::<Vec<_>>()[..], &VESSEL_MU0[..]);
+    assert_eq!(
+        &case["mu0"]
+            .as_array()
+            .expect("mu0")
+            .iter()
+            .map(num)
+            .collect::<Vec<_>>()[..],
+        &VESSEL_MU0[..]
+    );
     run_imm_case(case, &imm);
 }
 
@@ -114,7 +174,11 @@ fn sojourn_switching_matches_filterpy_imm() {
 #[test]
 fn sojourn_transition_matrix_follows_definition() {
     let cv = Motion::ConstantVelocity { accel_psd: 0.1 };
-    let imm = Imm::new(&[cv, cv, cv], Switching::Sojourn([10.0, 5.0, f64::INFINITY])).expect("imm");
+    let imm = Imm::new(
+        &[cv, cv, cv],
+        Switching::Sojourn([10.0, 5.0, f64::INFINITY]),
+    )
+    .expect("imm");
     for &dt in &[0.0, 0.5, 3.0, 100.0] {
         let m = imm.transition_matrix(dt);
         for i in 0..3 {
@@ -127,11 +191,16 @@ fn sojourn_transition_matrix_follows_definition() {
             assert!((m[i].iter().sum::<f64>() - 1.0).abs() < 1e-15);
         }
     }
-    assert_eq!(imm.transition_matrix(0.0), [[1.0, 0.0, 0.0], [0.0, 1.0, 0.0], [0.0, 0.0, 1.0]]);
+    assert_eq!(
+        imm.transition_matrix(0.0),
+        [[1.0, 0.0, 0.0], [0.0, 1.0, 0.0], [0.0, 0.0, 1.0]]
+    );
     assert_eq!(imm.transition_matrix(7.0)[2], [0.0, 0.0, 1.0]);
     let two = Imm::new(&[cv, cv], Switching::Sojourn([4.0, 8.0, 0.0])).expect("imm");
     let m = two.transition_matrix(2.0);
-    assert!((m[0][1] - (1.0 - (-0.5f64).exp())).abs() < 1e-15 && m[0][2] == 0.0 && m[2] == [0.0; 3]);
+    assert!(
+        (m[0][1] - (1.0 - (-0.5f64).exp())).abs() < 1e-15 && m[0][2] == 0.0 && m[2] == [0.0; 3]
+    );
     let one = Imm::new(&[cv], Switching::Sojourn([4.0, 0.0, 0.0])).expect("imm");
     assert_eq!(one.transition_matrix(2.0)[0], [1.0, 0.0, 0.0]);
 }
@@ -141,8 +210,15 @@ fn sojourn_transition_matrix_follows_definition() {
 /// checked against filterpy).
 #[test]
 fn one_model_imm_is_the_kalman_filter() {
-    let ct = Motion::CoordinatedTurn { accel_psd: 0.05, turn_psd: 1e-4 };
-    let imm = Imm::new(&[ct], Switching::Fixed([[1.0, 0.0, 0.0], [0.0; 3], [0.0; 3]])).expect("imm");
+    let ct = Motion::CoordinatedTurn {
+        accel_psd: 0.05,
+        turn_psd: 1e-4,
+    };
+    let imm = Imm::new(
+        &[ct],
+        Switching::Fixed([[1.0, 0.0, 0.0], [0.0; 3], [0.0; 3]]),
+    )
+    .expect("imm");
     let g0 = Gaussian {
         x: StateVec::new(0.0, 0.0, 5.0, 1.0, 0.02),
         p: StateCov::from_diagonal(&StateVec::new(100.0, 100.0, 4.0, 4.0, 1e-4)),
@@ -178,11 +254,19 @@ fn far_plot_does_not_underflow_model_probabilities() {
         p: StateCov::from_diagonal(&StateVec::new(100.0, 100.0, 1.0, 1.0, 1e-6)),
     };
     let cv = Motion::ConstantVelocity { accel_psd: 0.02 };
-    let twins = Imm::new(&[cv, cv], Switching::Fixed([[0.9, 0.1, 0.0], [0.2, 0.8, 0.0], [0.0; 3]])).expect("imm");
+    let twins = Imm::new(
+        &[cv, cv],
+        Switching::Fixed([[0.9, 0.1, 0.0], [0.2, 0.8, 0.0], [0.0; 3]]),
+    )
+    .expect("imm");
     let pred = twins.predict(&twins.init(g0, Some(&[0.3, 0.7])), 3.0);
     for j in 0..2 {
         let inn = innovation(&pred.comps[j], &z, &r).expect("innovation");
-        assert_eq!(inn.log_likelihood().exp(), 0.0, "likelihood did not underflow");
+        assert_eq!(
+            inn.log_likelihood().exp(),
+            0.0,
+            "likelihood did not underflow"
+        );
     }
     let (post, ll) = twins.update(&pred, &z, &r).expect("update");
     assert!(ll.is_finite() && ll < -1e6);
@@ -190,7 +274,12 @@ fn far_plot_does_not_underflow_model_probabilities() {
     // 1e8 shifts their log-likelihoods by up to a few ε·|ln N|.
     let tol = 8.0 * f64::EPSILON * ll.abs();
     for j in 0..2 {
-        assert!((post.mu[j] - pred.mu[j]).abs() <= tol * pred.mu[j], "{} vs {}", post.mu[j], pred.mu[j]);
+        assert!(
+            (post.mu[j] - pred.mu[j]).abs() <= tol * pred.mu[j],
+            "{} vs {}",
+            post.mu[j],
+            pred.mu[j]
+        );
     }
 
     let vessel = Imm::vessel_default();
@@ -214,15 +303,36 @@ fn far_plot_does_not_underflow_model_probabilities() {
 #[test]
 fn unreachable_model_stays_at_zero() {
     let cv = Motion::ConstantVelocity { accel_psd: 0.02 };
-    let ct = Motion::CoordinatedTurn { accel_psd: 0.05, turn_psd: 1e-4 };
-    let imm = Imm::new(&[cv, ct], Switching::Fixed([[1.0, 0.0, 0.0], [0.5, 0.5, 0.0], [0.0; 3]])).expect("imm");
-    let g0 = Gaussian { x: StateVec::new(0.0, 0.0, 5.0, 0.0, 0.0), p: StateCov::identity() * 10.0 };
+    let ct = Motion::CoordinatedTurn {
+        accel_psd: 0.05,
+        turn_psd: 1e-4,
+    };
+    let imm = Imm::new(
+        &[cv, ct],
+        Switching::Fixed([[1.0, 0.0, 0.0], [0.5, 0.5, 0.0], [0.0; 3]]),
+    )
+    .expect("imm");
+    let g0 = Gaussian {
+        x: StateVec::new(0.0, 0.0, 5.0, 0.0, 0.0),
+        p: StateCov::identity() * 10.0,
+    };
     let mut s = imm.init(g0, Some(&[1.0, 0.0]));
     for k in 1..10 {
         let pred = imm.predict(&s, 2.0);
         assert_eq!(pred.mu[1], 0.0);
-        s = imm.update(&pred, &Vector2::new(10.0 * k as f64, 0.0), &Matrix2::identity()).expect("update").0;
-        assert!(s.comps.iter().all(|c| c.x.iter().chain(c.p.iter()).all(|v| v.is_finite())));
+        s = imm
+            .update(
+                &pred,
+                &Vector2::new(10.0 * k as f64, 0.0),
+                &Matrix2::identity(),
+            )
+            .expect("update")
+            .0;
+        assert!(
+            s.comps
+                .iter()
+                .all(|c| c.x.iter().chain(c.p.iter()).all(|v| v.is_finite()))
+        );
         assert_eq!(s.mu[..2], [1.0, 0.0]);
     }
 }
@@ -240,24 +350,42 @@ fn invalid_configurations_are_rejected() {
     let nan = Switching::Fixed([[f64::NAN, 1.0, 0.0], [0.1, 0.9, 0.0], [0.0; 3]]);
     assert_eq!(Imm::new(&[cv, cv], nan), Err(ImmError::Transition));
     for tau in [0.0, -1.0, f64::NAN] {
-        assert_eq!(Imm::new(&[cv, cv], Switching::Sojourn([10.0, tau, 1.0])), Err(ImmError::Sojourn));
+        assert_eq!(
+            Imm::new(&[cv, cv], Switching::Sojourn([10.0, tau, 1.0])),
+            Err(ImmError::Sojourn)
+        );
     }
     // Entries past the model count are not looked at.
     assert!(Imm::new(&[cv, cv], Switching::Sojourn([10.0, 5.0, f64::NAN])).is_ok());
-    let bad_model = Motion::CoordinatedTurn { accel_psd: 0.1, turn_psd: f64::NAN };
-    assert_eq!(Imm::new(&[cv, bad_model], fixed), Err(ImmError::ModelParameter));
+    let bad_model = Motion::CoordinatedTurn {
+        accel_psd: 0.1,
+        turn_psd: f64::NAN,
+    };
+    assert_eq!(
+        Imm::new(&[cv, bad_model], fixed),
+        Err(ImmError::ModelParameter)
+    );
     let negative_model = Motion::ConstantVelocity { accel_psd: -1.0 };
-    assert_eq!(Imm::new(&[negative_model], fixed), Err(ImmError::ModelParameter));
+    assert_eq!(
+        Imm::new(&[negative_model], fixed),
+        Err(ImmError::ModelParameter)
+    );
 }
 
 #[test]
 fn init_sanitises_model_probabilities() {
     let imm = Imm::vessel_default();
-    let g = Gaussian { x: StateVec::zeros(), p: StateCov::identity() };
+    let g = Gaussian {
+        x: StateVec::zeros(),
+        p: StateCov::identity(),
+    };
     let third = 1.0 / 3.0;
     assert_eq!(imm.init(g, None).mu, [third; 3]);
     assert_eq!(imm.init(g, Some(&[2.0, 1.0, 1.0])).mu, [0.5, 0.25, 0.25]);
-    assert_eq!(imm.init(g, Some(&[-1.0, f64::NAN, 1.0])).mu, [0.0, 0.0, 1.0]);
+    assert_eq!(
+        imm.init(g, Some(&[-1.0, f64::NAN, 1.0])).mu,
+        [0.0, 0.0, 1.0]
+    );
     assert_eq!(imm.init(g, Some(&[0.0, 0.0, 0.0])).mu, [third; 3]);
     assert_eq!(imm.init(g, Some(&[1.0])).mu, [third; 3]);
 }
@@ -298,9 +426,15 @@ fn vessel_default_follows_a_turn() {
     let mut t = 0.0;
     while t < 180.0 {
         t += dt;
-        let noise = Vector2::new(rng.sample::<f64, _>(StandardNormal), rng.sample::<f64, _>(StandardNormal)) * 5.0;
+        let noise = Vector2::new(
+            rng.sample::<f64, _>(StandardNormal),
+            rng.sample::<f64, _>(StandardNormal),
+        ) * 5.0;
         let pred = imm.predict(&s, dt);
-        s = imm.update(&pred, &(truth(t) + noise), &r).expect("update").0;
+        s = imm
+            .update(&pred, &(truth(t) + noise), &r)
+            .expect("update")
+            .0;
         let acc = if (30.0..60.0).contains(&t) {
             &mut straight
         } else if (75.0..120.0).contains(&t) {
@@ -311,41 +445,71 @@ fn vessel_default_follows_a_turn() {
         acc.iter_mut().zip(s.mu).for_each(|(a, m)| *a += m);
     }
     eprintln!("straight {straight:?} turning {turning:?}");
-    assert!(straight[0] > straight[1] && straight[0] > straight[2], "straight leg: {straight:?}");
-    assert!(turning[1] > turning[0] && turning[1] > turning[2], "turn: {turning:?}");
+    assert!(
+        straight[0] > straight[1] && straight[0] > straight[2],
+        "straight leg: {straight:?}"
+    );
+    assert!(
+        turning[1] > turning[0] && turning[1] > turning[2],
+        "turn: {turning:?}"
+    );
     let est = imm.combine(&s);
     assert!((est.x.fixed_rows::<2>(0) - truth(t)).norm() < 20.0);
 }
 
-/// Cost of one IMM cycle of the vessel default (3 models). Run with
+/// Cost of the filter pieces and of the default (3-model) IMM. Run with
 /// `cargo test --release --test imm_checks -- --ignored --nocapture`.
 #[test]
 #[ignore]
-fn timing_of_one_cycle() {
-    let imm = Imm::vessel_default();
-    let g0 = Gaussian {
+fn timing_of_filter_pieces() {
+    use std::hint::black_box;
+    let g = Gaussian {
         x: StateVec::new(0.0, 0.0, 5.0, 1.0, 0.01),
         p: StateCov::from_diagonal(&StateVec::new(25.0, 25.0, 4.0, 4.0, 1e-4)),
     };
     let r = Matrix2::identity() * 25.0;
-    let mut s = imm.init(g0, Some(&VESSEL_MU0));
-    let n = 200_000;
-    let mut pred_ns = 0u128;
-    let start = std::time::Instant::now();
-    for k in 0..n {
-        let t0 = std::time::Instant::now();
-        let pred = imm.predict(std::hint::black_box(&s), 2.5);
-        pred_ns += t0.elapsed().as_nanos();
-        let z = Vector2::new(12.5 * (k % 100) as f64, 2.5 * (k % 100) as f64);
-        s = match imm.update(&pred, std::hint::black_box(&z), &r) {
-            Some((post, _)) => post,
-            None => imm.init(g0, None),
-        };
-        if k % 100 == 99 {
-            s = imm.init(g0, Some(&VESSEL_MU0));
+    let z = Vector2::new(3.0, -2.0);
+    // The machine is shared: report the fastest of many short batches,
+    // which is the cost without preemption by other processes.
+    let time = |what: &str, f: &dyn Fn() -> f64| {
+        let (batches, per_batch) = (300, 2_000);
+        let mut best = f64::INFINITY;
+        let mut acc = 0.0;
+        for _ in 0..batches {
+            let t0 = std::time::Instant::now();
+            for _ in 0..per_batch {
+                acc += f();
+            }
+            best = best.min(t0.elapsed().as_nanos() as f64 / per_batch as f64);
         }
-    }
-    let total = start.elapsed().as_nanos() as f64 / n as f64;
-    let pred = pred_ns as f64 / n as f64;
-    eprintln!("IMM (3 models): predict {pred:.0} ns, update {:.0} ns, cycle {total:.0} ns", total - pred);
+        eprintln!("{what}: {best:.0} ns (checksum {acc:e})");
+    };
+    let cv = Motion::ConstantVelocity { accel_psd: 0.02 };
+    let ct = Motion::CoordinatedTurn {
+        accel_psd: 0.05,
+        turn_psd: 1e-4,
+    };
+    time("CV predict", &|| {
+        cv.predict(black_box(&g), black_box(2.5)).p[(0, 0)]
+    });
+    time("CT predict", &|| {
+        ct.predict(black_box(&g), black_box(2.5)).p[(0, 0)]
+    });
+    time("innovation", &|| {
+        innovation(black_box(&g), black_box(&z), &r).map_or(0.0, |i| i.d2)
+    });
+    time("update", &|| {
+        update(black_box(&g), black_box(&z), &r).map_or(0.0, |u| u.0.p[(0, 0)])
+    });
+    let imm = Imm::vessel_default();
+    let s = imm.init(g, Some(&VESSEL_MU0));
+    let pred = imm.predict(&s, 2.5);
+    time("IMM predict", &|| {
+        imm.predict(black_box(&s), black_box(2.5)).mu[0]
+    });
+    time("IMM update", &|| {
+        imm.update(black_box(&pred), black_box(&z), &r)
+            .map_or(0.0, |u| u.1)
+    });
+    time("IMM combine", &|| imm.combine(black_box(&pred)).p[(0, 0)]);
 }

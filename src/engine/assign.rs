@@ -10,7 +10,9 @@
 //! ([`AssignError::BadCost`]); a problem where the rows cannot all be
 //! placed on allowed pairs is rejected ([`AssignError::Infeasible`]). Ties
 //! between equally cheap assignments are broken deterministically: the same
-//! matrix always gives the same assignment.
+//! matrix always gives the same assignment. Finite costs are assumed to be
+//! of ordinary magnitude (far from ±1e300), so that their differences do
+//! not overflow.
 //!
 //! [`SparseAssigner::solve`] takes a gated problem: the allowed
 //! (row, column, cost) pairs, plus the cost of leaving each row and each
@@ -267,7 +269,10 @@ impl LapSolver {
                 }
                 min = dist[order[up]];
                 up += 1;
-                for k in up..cols {
+                // `up` grows inside: the columns swapped to it are ones
+                // this loop has already passed.
+                let start = up;
+                for k in start..cols {
                     let j = order[k];
                     let h = dist[j];
                     if h <= min {
@@ -294,7 +299,8 @@ impl LapSolver {
             let i = col_row[j1];
             let row_i = &cost[i * cols..(i + 1) * cols];
             let base = row_i[j1] - v[j1] - min;
-            for k in up..cols {
+            let start = up;
+            for k in start..cols {
                 let j = order[k];
                 let h = row_i[j] - v[j] - base;
                 if h < dist[j] {
@@ -341,9 +347,7 @@ fn validate(cols: usize, cost: &[f64]) -> Result<(), AssignError> {
         let mut any_finite = false;
         let mut bad = false;
         for &c in row {
-            // NaN and -inf both fail `c > -inf`; written so one compare
-            // per entry covers both.
-            bad |= !(c > f64::NEG_INFINITY);
+            bad |= c.is_nan() || c == f64::NEG_INFINITY;
             any_finite |= c < f64::INFINITY;
         }
         if bad {

@@ -61,7 +61,10 @@ impl Motion {
         let dt = sanitize_dt(dt);
         let (x, f) = self.transition(&g.x, dt);
         let q = self.process_noise(dt);
-        Gaussian { x, p: symmetric(f * g.p * f.transpose() + q) }
+        Gaussian {
+            x,
+            p: symmetric(f * g.p * f.transpose() + q),
+        }
     }
 
     /// The predicted mean `f(x)` after `dt` seconds and the Jacobian of the
@@ -92,7 +95,10 @@ impl Motion {
         let dt = sanitize_dt(dt);
         match *self {
             Motion::ConstantVelocity { accel_psd } => cwna_noise(dt, accel_psd),
-            Motion::CoordinatedTurn { accel_psd, turn_psd } => {
+            Motion::CoordinatedTurn {
+                accel_psd,
+                turn_psd,
+            } => {
                 let mut q = cwna_noise(dt, accel_psd);
                 q[(4, 4)] = turn_psd * dt;
                 q
@@ -105,7 +111,10 @@ impl Motion {
         let ok = |v: f64| v.is_finite() && v >= 0.0;
         match *self {
             Motion::ConstantVelocity { accel_psd } => ok(accel_psd),
-            Motion::CoordinatedTurn { accel_psd, turn_psd } => ok(accel_psd) && ok(turn_psd),
+            Motion::CoordinatedTurn {
+                accel_psd,
+                turn_psd,
+            } => ok(accel_psd) && ok(turn_psd),
         }
     }
 }
@@ -130,12 +139,16 @@ pub fn cwna_noise(dt: f64, q: f64) -> StateCov {
 /// Discrete white-noise acceleration ("piecewise constant acceleration")
 /// process noise with acceleration variance `accel_var` (m²/s⁴):
 /// `Γ σ² Γᵀ` with `Γ = [dt²/2, dt]` per axis (Bar-Shalom, Li &
-/// Kirubarajan 2001, §6.3.3). The CV model uses [`cwna_noise`]; this one is
+/// Kirubarajan 2001, §6.3.3, section from memory). The CV model uses [`cwna_noise`]; this one is
 /// the model of the classical α-β steady-state relations and is exposed
 /// for filters that want it with [`predict_linear`].
 pub fn dwna_noise(dt: f64, accel_var: f64) -> StateCov {
     let dt2 = dt * dt;
-    axis_blocks(accel_var * dt2 * dt2 / 4.0, accel_var * dt2 * dt / 2.0, accel_var * dt2)
+    axis_blocks(
+        accel_var * dt2 * dt2 / 4.0,
+        accel_var * dt2 * dt / 2.0,
+        accel_var * dt2,
+    )
 }
 
 fn axis_blocks(pp: f64, pv: f64, vv: f64) -> StateCov {
@@ -152,7 +165,10 @@ fn axis_blocks(pp: f64, pv: f64, vv: f64) -> StateCov {
 
 /// A linear prediction `x ← F x`, `P ← F P Fᵀ + Q` (result symmetrised).
 pub fn predict_linear(g: &Gaussian, f: &StateCov, q: &StateCov) -> Gaussian {
-    Gaussian { x: f * g.x, p: symmetric(f * g.p * f.transpose() + q) }
+    Gaussian {
+        x: f * g.x,
+        p: symmetric(f * g.p * f.transpose() + q),
+    }
 }
 
 fn sanitize_dt(dt: f64) -> f64 {
@@ -192,18 +208,35 @@ fn turn_coeffs(w: f64, dt: f64) -> TurnCoeffs {
         //   (a cos a - sin a) / a² = Σ_{n≥1} (-1)^n 2n a^(2n-1) / (2n+1)!
         //   (a sin a - 1 + cos a) / a² = Σ_{m≥1} (-1)^(m-1) (2m-1) a^(2m-2) / (2m)!
         let s0 = 1.0 - a2 / 6.0 * (1.0 - a2 / 20.0 * (1.0 - a2 / 42.0 * (1.0 - a2 / 72.0)));
-        let c0 = a / 2.0 * (1.0 - a2 / 12.0 * (1.0 - a2 / 30.0 * (1.0 - a2 / 56.0 * (1.0 - a2 / 90.0))));
+        let c0 =
+            a / 2.0 * (1.0 - a2 / 12.0 * (1.0 - a2 / 30.0 * (1.0 - a2 / 56.0 * (1.0 - a2 / 90.0))));
         let ds0 = a
             * (-1.0 / 3.0
-                + a2 * (1.0 / 30.0 + a2 * (-1.0 / 840.0 + a2 * (1.0 / 45_360.0 - a2 / 3_991_680.0))));
-        let dc0 = 0.5 + a2 * (-1.0 / 8.0 + a2 * (1.0 / 144.0 + a2 * (-1.0 / 5_760.0 + a2 / 403_200.0)));
-        TurnCoeffs { s: dt * s0, c: dt * c0, ds: dt * dt * ds0, dc: dt * dt * dc0, sin, cos }
+                + a2 * (1.0 / 30.0
+                    + a2 * (-1.0 / 840.0 + a2 * (1.0 / 45_360.0 - a2 / 3_991_680.0))));
+        let dc0 =
+            0.5 + a2 * (-1.0 / 8.0 + a2 * (1.0 / 144.0 + a2 * (-1.0 / 5_760.0 + a2 / 403_200.0)));
+        TurnCoeffs {
+            s: dt * s0,
+            c: dt * c0,
+            ds: dt * dt * ds0,
+            dc: dt * dt * dc0,
+            sin,
+            cos,
+        }
     } else {
         let s = sin / w;
         // 1 − cos a = 2 sin²(a/2) avoids the cancellation of 1 − cos a.
         let half = (0.5 * a).sin();
         let c = 2.0 * half * half / w;
-        TurnCoeffs { s, c, ds: (dt * cos - s) / w, dc: (dt * sin - c) / w, sin, cos }
+        TurnCoeffs {
+            s,
+            c,
+            ds: (dt * cos - s) / w,
+            dc: (dt * sin - c) / w,
+            sin,
+            cos,
+        }
     }
 }
 
@@ -258,13 +291,13 @@ pub fn innovation(g: &Gaussian, z: &Vector2<f64>, r: &Matrix2<f64>) -> Option<In
     let s = symmetric(g.p.fixed_view::<2, 2>(0, 0) + r);
     // 2×2 Cholesky by hand: S = L Lᵀ, L = [[l11, 0], [l21, l22]].
     let (a, b, d) = (s[(0, 0)], s[(1, 0)], s[(1, 1)]);
-    if !(a > 0.0) || !a.is_finite() {
+    if !a.is_finite() || a <= 0.0 {
         return None;
     }
     let l11 = a.sqrt();
     let l21 = b / l11;
     let schur = d - l21 * l21;
-    if !(schur > 0.0) || !schur.is_finite() {
+    if !schur.is_finite() || schur <= 0.0 {
         return None;
     }
     let l22 = schur.sqrt();
@@ -274,11 +307,17 @@ pub fn innovation(g: &Gaussian, z: &Vector2<f64>, r: &Matrix2<f64>) -> Option<In
     let y1 = nu[0] / l11;
     let y2 = (nu[1] - l21 * y1) / l22;
     let d2 = y1 * y1 + y2 * y2;
-    let ln_det_s = 2.0 * (l11.ln() + l22.ln());
+    let ln_det_s = det.ln();
     if !d2.is_finite() || !ln_det_s.is_finite() || !s_inv.iter().all(|v| v.is_finite()) {
         return None;
     }
-    Some(Innovation { nu, s, s_inv, d2, ln_det_s })
+    Some(Innovation {
+        nu,
+        s,
+        s_inv,
+        d2,
+        ln_det_s,
+    })
 }
 
 /// The Kalman gain `K = P Hᵀ S⁻¹` for a position measurement.
@@ -291,15 +330,16 @@ pub fn update(g: &Gaussian, z: &Vector2<f64>, r: &Matrix2<f64>) -> Option<(Gauss
     let inn = innovation(g, z, r)?;
     let k = gain(g, &inn);
     let x = g.x + k * inn.nu;
-    // I − K H: H picks the first two states, so K H is K in the first two
-    // columns.
-    let mut i_kh = StateCov::identity();
-    let mut first_two = i_kh.fixed_columns_mut::<2>(0);
-    first_two -= k;
+    // Joseph form (I − KH) P (I − KH)ᵀ + K R Kᵀ: it stays positive
+    // semi-definite under rounding and for any gain (Bar-Shalom, Li &
+    // Kirubarajan 2001, §5.2.3, section from memory). H picks the first two states, so
+    // (I − KH) M = M − K·(first two rows of M) and
+    // M (I − KH)ᵀ = M − (first two columns of M)·Kᵀ: the same products
+    // without multiplying by the zeros of KH.
     let r = symmetric(*r);
-    // Joseph form: stays positive semi-definite under rounding and for any
-    // gain (Bar-Shalom, Li & Kirubarajan 2001, §5.2.3).
-    let p = i_kh * g.p * i_kh.transpose() + k * r * k.transpose();
+    let a = g.p - k * g.p.fixed_rows::<2>(0);
+    let b = a - a.fixed_columns::<2>(0) * k.transpose();
+    let p = b + k * r * k.transpose();
     let out = Gaussian { x, p: symmetric(p) };
     if !out.x.iter().chain(out.p.iter()).all(|v| v.is_finite()) {
         return None;
@@ -328,7 +368,12 @@ mod tests {
             let w = a / dt;
             let k = turn_coeffs(w, dt);
             let (s, c, ds, dc) = direct(w, dt);
-            for (got, want, scale) in [(k.s, s, dt), (k.c, c, dt), (k.ds, ds, dt * dt), (k.dc, dc, dt * dt)] {
+            for (got, want, scale) in [
+                (k.s, s, dt),
+                (k.c, c, dt),
+                (k.ds, ds, dt * dt),
+                (k.dc, dc, dt * dt),
+            ] {
                 let tol = 4.0 * f64::EPSILON / (a * a) * want.abs() + 1e-18 * scale;
                 assert!((got - want).abs() <= tol, "a={a}: {got} vs {want}");
             }

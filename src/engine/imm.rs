@@ -100,15 +100,18 @@ impl Imm {
                 }
             }
             Switching::Sojourn(tau) => {
-                // `!(t > 0)` also rejects NaN.
-                if tau[..n].iter().any(|t| !(*t > 0.0)) {
+                if tau[..n].iter().any(|t| t.is_nan() || *t <= 0.0) {
                     return Err(ImmError::Sojourn);
                 }
             }
         }
         let mut all = [models[0]; MAX_MODELS];
         all[..n].copy_from_slice(models);
-        Ok(Imm { models: all, n, switching })
+        Ok(Imm {
+            models: all,
+            n,
+            switching,
+        })
     }
 
     /// A default IMM for vessels seen by a harbour or coastal radar, in
@@ -118,7 +121,7 @@ impl Imm {
     ///    Over a 3 s scan the velocity wanders by √(qT) ≈ 0.25 m/s,
     ///    which covers wind, current and helm noise of ships and most
     ///    small craft (the usual sizing √(qT) ≈ typical velocity change per
-    ///    scan, BLK 2001 §6.2.2; values common practice).
+    ///    scan, BLK 2001 §6.2.2, from memory; values common practice).
     /// 1. CT, `accel_psd` 0.05 m²/s³ and `turn_psd` 1e-4 rad²/s³: the turn
     ///    rate random-walks by √(1e-4·3) ≈ 0.017 rad/s (1°/s) per 3 s scan
     ///    and ≈ 2.2°/s over 15 s, so a turn of up to ~3°/s (fast boats;
@@ -135,10 +138,17 @@ impl Imm {
     pub fn vessel_default() -> Imm {
         let models = [
             Motion::ConstantVelocity { accel_psd: 0.02 },
-            Motion::CoordinatedTurn { accel_psd: 0.05, turn_psd: 1e-4 },
+            Motion::CoordinatedTurn {
+                accel_psd: 0.05,
+                turn_psd: 1e-4,
+            },
             Motion::ConstantVelocity { accel_psd: 0.5 },
         ];
-        Imm { models, n: 3, switching: Switching::Sojourn([60.0, 20.0, 15.0]) }
+        Imm {
+            models,
+            n: 3,
+            switching: Switching::Sojourn([60.0, 20.0, 15.0]),
+        }
     }
 
     pub fn n_models(&self) -> usize {
@@ -165,17 +175,14 @@ impl Imm {
                     out[i][..n].copy_from_slice(&m[i][..n]);
                 }
             }
+            Switching::Sojourn(_) if n == 1 => out[0][0] = 1.0,
             Switching::Sojourn(tau) => {
                 let dt = if dt.is_finite() && dt > 0.0 { dt } else { 0.0 };
-                for i in 0..n {
-                    if n == 1 {
-                        out[0][0] = 1.0;
-                        break;
-                    }
+                for (i, row) in out.iter_mut().enumerate().take(n) {
                     let stay = (-dt / tau[i]).exp();
                     let leave = (1.0 - stay) / (n - 1) as f64;
-                    for j in 0..n {
-                        out[i][j] = if i == j { stay } else { leave };
+                    for (j, p) in row.iter_mut().enumerate().take(n) {
+                        *p = if i == j { stay } else { leave };
                     }
                 }
             }
@@ -204,7 +211,10 @@ impl Imm {
             mu = [0.0; MAX_MODELS];
             mu[..n].iter_mut().for_each(|m| *m = 1.0 / n as f64);
         }
-        ImmState { comps: [g; MAX_MODELS], mu }
+        ImmState {
+            comps: [g; MAX_MODELS],
+            mu,
+        }
     }
 
     /// Mixing, then each model's prediction over `dt` seconds.
@@ -222,7 +232,11 @@ impl Imm {
             // mixture will do for its prior; the current μ is used.
             let mut w = [0.0; MAX_MODELS];
             for i in 0..n {
-                w[i] = if cbar[j] > 0.0 { pi[i][j] * s.mu[i] / cbar[j] } else { s.mu[i] };
+                w[i] = if cbar[j] > 0.0 {
+                    pi[i][j] * s.mu[i] / cbar[j]
+                } else {
+                    s.mu[i]
+                };
             }
             let mixed = moment_match(&s.comps[..n], &w[..n]);
             out.comps[j] = self.models[j].predict(&mixed, dt);
@@ -240,33 +254,34 @@ impl Imm {
     /// and the model probabilities with their likelihoods. Returns the new
     /// state and the mixture's log-likelihood ln Σ μ_j N_j; `None` if no
     /// model could be updated.
-    pub fn update(&self, pred: &ImmState, z: &Vector2<f64>, r: &Matrix2<f64>) -> Option<(ImmState, f64)> {
+    pub fn update(
+        &self,
+        pred: &ImmState,
+        z: &Vector2<f64>,
+        r: &Matrix2<f64>,
+    ) -> Option<(ImmState, f64)> {
         let n = self.n;
         let mut out = *pred;
         let mut log_w = [f64::NEG_INFINITY; MAX_MODELS];
-        for j in 0..n {
+        for ((comp, lw), mu) in out.comps.iter_mut().zip(&mut log_w).zip(pred.mu).take(n) {
             // A model that cannot take the measurement keeps its prediction
             // and drops to probability 0 for this scan.
-            if let Some((post, inn)) = kalman_update(&pred.comps[j], z, r) {
-                out.comps[j] = post;
-                log_w[j] = pred.mu[j].ln() + inn.log_likelihood();
+            if let Some((post, inn)) = kalman_update(comp, z, r) {
+                *comp = post;
+                *lw = mu.ln() + inn.log_likelihood();
             }
         }
         let max = log_w[..n].iter().copied().fold(f64::NEG_INFINITY, f64::max);
         if !max.is_finite() {
             return None;
         }
-        let mut w = [0.0; MAX_MODELS];
-        let mut sum = 0.0;
-        for j in 0..n {
-            w[j] = (log_w[j] - max).exp();
-            sum += w[j];
+        out.mu = [0.0; MAX_MODELS];
+        for (m, lw) in out.mu.iter_mut().zip(log_w).take(n) {
+            *m = (lw - max).exp();
         }
         // sum ≥ 1: the largest term is exp(0).
-        out.mu = [0.0; MAX_MODELS];
-        for j in 0..n {
-            out.mu[j] = w[j] / sum;
-        }
+        let sum: f64 = out.mu.iter().sum();
+        out.mu.iter_mut().for_each(|m| *m /= sum);
         Some((out, max + sum.ln()))
     }
 }
@@ -286,7 +301,10 @@ fn moment_match(comps: &[Gaussian], w: &[f64]) -> Gaussian {
         let d = c.x - x;
         p += (c.p + d * d.transpose()) * wi;
     }
-    Gaussian { x, p: (p + p.transpose()) * 0.5 }
+    Gaussian {
+        x,
+        p: (p + p.transpose()) * 0.5,
+    }
 }
 
 fn normalized(mut mu: [f64; MAX_MODELS], n: usize) -> [f64; MAX_MODELS] {

@@ -5,7 +5,9 @@
 //! record carries the sensor's index in the configuration
 //! ([`SensorId`]), so the engine never compares strings on its hot path.
 
+pub mod asterix;
 pub mod json;
+pub mod nmea;
 pub mod screen;
 pub mod tracks;
 

@@ -17,7 +17,11 @@ pub fn num(v: &Value) -> f64 {
 }
 
 fn nums(v: &Value) -> Vec<f64> {
-    v.as_array().unwrap_or_else(|| panic!("not an array: {v}")).iter().map(num).collect()
+    v.as_array()
+        .unwrap_or_else(|| panic!("not an array: {v}"))
+        .iter()
+        .map(num)
+        .collect()
 }
 
 pub fn smat<const R: usize, const C: usize>(v: &Value) -> SMatrix<f64, R, C> {
@@ -55,13 +59,21 @@ pub fn m2(v: &Value) -> Matrix2<f64> {
 }
 
 pub fn gaussian(x: &Value, p: &Value) -> Gaussian {
-    Gaussian { x: state(x), p: cov(p) }
+    Gaussian {
+        x: state(x),
+        p: cov(p),
+    }
 }
 
 /// Covariances agree to `tol` on the correlation scale:
 /// |Pᵢⱼ − Rᵢⱼ| ≤ tol·√(RᵢᵢRⱼⱼ). Entries whose variances are 0 (the CV
 /// model's turn rate) must match exactly.
-pub fn assert_cov_close<const N: usize>(got: &SMatrix<f64, N, N>, want: &SMatrix<f64, N, N>, tol: f64, what: &str) {
+pub fn assert_cov_close<const N: usize>(
+    got: &SMatrix<f64, N, N>,
+    want: &SMatrix<f64, N, N>,
+    tol: f64,
+    what: &str,
+) {
     for i in 0..N {
         for j in 0..N {
             let scale = (want[(i, i)].abs() * want[(j, j)].abs()).sqrt();
@@ -82,13 +94,21 @@ pub fn assert_state_close(got: &StateVec, want: &StateVec, p: &StateCov, tol: f6
     for i in 0..5 {
         let scale = want[i].abs().max(p[(i, i)].abs().sqrt());
         let err = (got[i] - want[i]).abs();
-        assert!(err <= tol * scale, "{what}[{i}]: got {:e}, want {:e} (err {err:e})", got[i], want[i]);
+        assert!(
+            err <= tol * scale,
+            "{what}[{i}]: got {:e}, want {:e} (err {err:e})",
+            got[i],
+            want[i]
+        );
     }
 }
 
 pub fn assert_rel(got: f64, want: f64, tol: f64, what: &str) {
     let err = (got - want).abs();
-    assert!(err <= tol * want.abs().max(1.0), "{what}: got {got:e}, want {want:e} (err {err:e})");
+    assert!(
+        err <= tol * want.abs().max(1.0),
+        "{what}: got {got:e}, want {want:e} (err {err:e})"
+    );
 }
 
 pub fn assert_symmetric(p: &StateCov, what: &str) {
