@@ -219,3 +219,14 @@ mod tests {
         assert_eq!(t.last_hit(2), Some(Timestamp::from_unix_nanos(2)));
     }
 }
+
+#[cfg(test)]
+mod size {
+    /// The memory budget is under 2 KiB per live track; the track
+    /// itself must leave room for the grid and identity entries.
+    #[test]
+    fn a_track_fits_its_budget() {
+        let bytes = std::mem::size_of::<super::Track>();
+        assert!(bytes < 1536, "Track is {bytes} bytes");
+    }
+}

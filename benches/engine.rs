@@ -1,0 +1,72 @@
+//! Engine throughput over a busy feed, and the cost of `track` against
+//! `check` on the same file.
+//!
+//! Input: the busy demo scenario (demo-feeds/busy-afternoon/feed.jsonl),
+//! replayed several times back to back with shifted times so that a run
+//! is long enough to time. Figures go in BENCHMARKS.md.
+
+use criterion::{Criterion, Throughput, criterion_group, criterion_main};
+use skerry::config::Config;
+use skerry::engine::Engine;
+use skerry::feed::Record;
+use skerry::offline::read_feeds;
+use std::hint::black_box;
+use std::path::PathBuf;
+
+fn scenario() -> (Config, PathBuf) {
+    let dir = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-feeds/busy-afternoon");
+    let cfg = Config::load(Some(&dir.join("config.toml")), &Default::default()).expect("demo config");
+    (cfg, dir.join("feed.jsonl"))
+}
+
+fn run_engine(cfg: &Config, records: &[Record]) -> usize {
+    let mut engine = Engine::new(cfg).expect("engine");
+    let mut out = Vec::with_capacity(4096);
+    let mut n = 0;
+    for r in records {
+        engine.handle(r, &mut out);
+        n += out.len();
+        out.clear();
+    }
+    engine.finish(&mut out);
+    n + out.len()
+}
+
+fn engine_throughput(c: &mut Criterion) {
+    let (cfg, feed) = scenario();
+    let records = read_feeds(&[feed.clone()], &cfg).expect("feed").records;
+    let plots = records.iter().filter(|r| matches!(r, Record::Detection(_))).count() as u64;
+    let mut g = c.benchmark_group("engine");
+    g.sample_size(10);
+    g.throughput(Throughput::Elements(plots));
+    g.bench_function("busy_afternoon_plots", |b| b.iter(|| black_box(run_engine(&cfg, &records))));
+    g.finish();
+
+    // check = read + decode + screen + order; track = that + engine + JSON out.
+    let mut g = c.benchmark_group("offline");
+    g.sample_size(10);
+    g.throughput(Throughput::Elements(plots));
+    g.bench_function("check", |b| b.iter(|| black_box(read_feeds(&[feed.clone()], &cfg).expect("feed").records.len())));
+    g.bench_function("track", |b| {
+        b.iter(|| {
+            let f = read_feeds(&[feed.clone()], &cfg).expect("feed");
+            let mut engine = Engine::new(&cfg).expect("engine");
+            let mut out = Vec::new();
+            let mut line = String::new();
+            let mut bytes = 0usize;
+            for r in &f.records {
+                engine.handle(r, &mut out);
+                for t in out.drain(..) {
+                    line.clear();
+                    t.write_json(&mut line);
+                    bytes += line.len() + 1;
+                }
+            }
+            black_box(bytes)
+        })
+    });
+    g.finish();
+}
+
+criterion_group!(benches, engine_throughput);
+criterion_main!(benches);
