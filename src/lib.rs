@@ -5,5 +5,7 @@ pub mod config;
 pub mod engine;
 pub mod feed;
 pub mod geo;
+pub mod score;
+pub mod sim;
 pub mod stats;
 pub mod time;
