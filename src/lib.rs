@@ -2,6 +2,8 @@
 //! surveillance.
 
 pub mod config;
+pub mod daemon;
+pub mod reorder;
 pub mod engine;
 pub mod feed;
 pub mod geo;
