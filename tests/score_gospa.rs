@@ -19,28 +19,39 @@ fn fixture() -> serde_json::Value {
 /// 2017, α = 2): the minimum over every partial assignment γ of
 /// Σ d^p + (c^p/2)(|X| + |Y| − 2|γ|). Returns (total, localisation, #assigned).
 fn brute_force(x: &[Vector2<f64>], y: &[Vector2<f64>], c: f64, p: f64) -> (f64, f64, usize) {
-    fn rec(i: usize, x: &[Vector2<f64>], y: &[Vector2<f64>], used: &mut Vec<bool>, loc: f64, k: usize, c: f64, p: f64, best: &mut (f64, f64, usize)) {
-        if i == x.len() {
-            let total = loc + 0.5 * c.powf(p) * (x.len() + y.len() - 2 * k) as f64;
-            if total < best.0 {
-                *best = (total, loc, k);
+    struct Search<'a> {
+        x: &'a [Vector2<f64>],
+        y: &'a [Vector2<f64>],
+        c: f64,
+        p: f64,
+        used: Vec<bool>,
+        best: (f64, f64, usize),
+    }
+    impl Search<'_> {
+        fn rec(&mut self, i: usize, loc: f64, k: usize) {
+            if i == self.x.len() {
+                let total = loc + 0.5 * self.c.powf(self.p) * (self.x.len() + self.y.len() - 2 * k) as f64;
+                if total < self.best.0 {
+                    self.best = (total, loc, k);
+                }
+                return;
             }
-            return;
-        }
-        // x_i left unassigned ...
-        rec(i + 1, x, y, used, loc, k, c, p, best);
-        // ... or paired with any free y_j.
-        for j in 0..y.len() {
-            if !used[j] {
-                used[j] = true;
-                rec(i + 1, x, y, used, loc + (x[i] - y[j]).norm().powf(p), k + 1, c, p, best);
-                used[j] = false;
+            // x_i left unassigned ...
+            self.rec(i + 1, loc, k);
+            // ... or paired with any free y_j.
+            for j in 0..self.y.len() {
+                if !self.used[j] {
+                    self.used[j] = true;
+                    let d = (self.x[i] - self.y[j]).norm().powf(self.p);
+                    self.rec(i + 1, loc + d, k + 1);
+                    self.used[j] = false;
+                }
             }
         }
     }
-    let mut best = (f64::INFINITY, 0.0, 0);
-    rec(0, x, y, &mut vec![false; y.len()], 0.0, 0, c, p, &mut best);
-    best
+    let mut s = Search { x, y, c, p, used: vec![false; y.len()], best: (f64::INFINITY, 0.0, 0) };
+    s.rec(0, 0.0, 0);
+    s.best
 }
 
 #[test]

@@ -501,10 +501,15 @@ pub fn run(args: &ScoreArgs) -> anyhow::Result<()> {
     let truth = parse_truth_jsonl(&read(&args.truth)?, &args.truth.display().to_string())?;
     let tracks = parse_tracks_jsonl(&read(&args.tracks)?, &args.tracks.display().to_string())?;
     let report = score(&truth, &tracks, &frame, &ScoreOptions { cutoff_m: args.cutoff_m, order: args.order }).with_context(|| format!("{}", args.truth.display()))?;
-    if args.json {
-        println!("{}", serde_json::to_string_pretty(&report)?);
-    } else {
-        print!("{}", report.table());
+    let text = if args.json { serde_json::to_string_pretty(&report)? + "\n" } else { report.table() };
+    {
+        use std::io::Write;
+        let mut out = std::io::stdout().lock();
+        // A closed pipe (`| head`) is not an error of the scoring.
+        match out.write_all(text.as_bytes()).and_then(|_| out.flush()) {
+            Err(e) if e.kind() != std::io::ErrorKind::BrokenPipe => return Err(e).context("cannot write to standard output"),
+            _ => {}
+        }
     }
     if let Some(path) = &args.plot {
         plot_svg(path, &truth, &tracks, &frame).with_context(|| format!("{}: cannot draw", path.display()))?;

@@ -7,16 +7,19 @@ use plotters::prelude::*;
 use std::collections::BTreeMap;
 use std::path::Path;
 
+/// Points of one line in time order: (time, (east km, north km)).
+type Line = Vec<(crate::time::Timestamp, (f64, f64))>;
+
 /// Draws each truth vessel as a wide grey line with its label, and each
 /// track's firm (confirmed or coasting) records as a thin line of its own
 /// colour, on equal east/north scales in kilometres.
 pub fn plot_svg(path: &Path, truth: &[TruthRecord], tracks: &[TrackRecord], frame: &LocalFrame) -> anyhow::Result<()> {
-    let mut vessels: BTreeMap<&VesselLabel, Vec<(crate::time::Timestamp, (f64, f64))>> = BTreeMap::new();
+    let mut vessels: BTreeMap<&VesselLabel, Line> = BTreeMap::new();
     for t in truth {
         let p = frame.geodetic_to_plane(Geodetic::new(t.lat_deg, t.lon_deg, 0.0));
         vessels.entry(&t.vessel).or_default().push((t.time, (p.x / 1000.0, p.y / 1000.0)));
     }
-    let mut firm: BTreeMap<u64, Vec<(crate::time::Timestamp, (f64, f64))>> = BTreeMap::new();
+    let mut firm: BTreeMap<u64, Line> = BTreeMap::new();
     for r in tracks.iter().filter(|r| r.status.is_firm()) {
         firm.entry(r.track).or_default().push((r.time, (r.east_m / 1000.0, r.north_m / 1000.0)));
     }

@@ -72,7 +72,8 @@ impl Motion {
                     (Kind::Accel(accel_mps2.copysign(dv)), dv.abs() / accel_mps2)
                 }
             };
-            if !(dur > 0.0) {
+            // Zero-length legs (and NaN, which checking rules out) add nothing.
+            if dur.is_nan() || dur <= 0.0 {
                 continue;
             }
             let seg = Segment { kind, ..cur };
