@@ -60,15 +60,15 @@ struct Scene {
 
 /// Tracks uniform over a square; each track gives one plot with 30 m
 /// Gaussian-ish noise (sum of uniforms), and clutter plots fall uniformly.
-/// A plot gates with every track within 150 m; pair cost is the squared
-/// distance over (50 m)², so at most 9. The leave-alone costs (6 for a
+/// A plot gates with every track within 120 m; pair cost is the squared
+/// distance over (40 m)², so at most 9. The leave-alone costs (6 for a
 /// plot, 4 for a track) are invented round numbers of the same order.
 fn scene() -> Scene {
     const TRACKS: usize = 5000;
     const CLUTTER: usize = 1000;
     const SIDE: f64 = 20_000.0;
-    const GATE: f64 = 150.0;
-    const SCALE: f64 = 50.0;
+    const GATE: f64 = 120.0;
+    const SCALE: f64 = 40.0;
     let mut i = 0u64;
     let mut next = || {
         i += 1;

@@ -22,6 +22,16 @@ pub enum Command {
     Track(TrackArgs),
     /// Decode and validate feed files only; print counts per sensor and reject reason.
     Check(CheckArgs),
+    /// Run the live service: UDP and gRPC ingest, track subscriptions, health.
+    Serve(crate::daemon::ServeArgs),
+    /// Send a recorded feed to a running service, paced by its record times.
+    Replay(crate::daemon::ReplayArgs),
+    /// Show the live track picture of a running service.
+    Watch(crate::daemon::WatchArgs),
+    /// Generate a scenario: feed, truth and configuration.
+    Simulate(crate::sim::SimulateArgs),
+    /// Score track records against truth (GOSPA, continuity, errors).
+    Score(crate::score::ScoreArgs),
     /// One command that shows skerry working on the bundled demo harbour.
     Demo(DemoArgs),
 }
@@ -150,6 +160,11 @@ pub fn main() -> Result<()> {
     match &cli.command {
         Command::Track(a) => track(a),
         Command::Check(a) => check(a),
+        Command::Serve(a) => crate::daemon::serve_main(a),
+        Command::Replay(a) => crate::daemon::replay_main(a),
+        Command::Watch(a) => crate::daemon::watch_main(a),
+        Command::Simulate(a) => crate::sim::run(a),
+        Command::Score(a) => crate::score::run(a),
         Command::Demo(a) => demo(a),
     }
 }

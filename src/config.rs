@@ -170,9 +170,116 @@ pub struct ServeConfig {
     /// ASTERIX data blocks (CONTRACT.md §8); absent: not listened for.
     #[serde(default)]
     pub asterix_udp: Option<String>,
-    /// Further daemon settings, owned by the daemon module.
-    #[serde(flatten)]
-    pub more: HashMap<String, toml::Value>,
+    /// Requested receive buffer of the UDP socket (bytes, SO_RCVBUF); the
+    /// kernel may grant less (net.core.rmem_max).
+    #[serde(default = "serve_default::udp_recv_buffer_bytes")]
+    pub udp_recv_buffer_bytes: usize,
+    /// How far out of order records may arrive (feed seconds), and how long
+    /// a quiet feed is waited for before what it sent is released.
+    #[serde(default = "serve_default::reorder_window_s")]
+    pub reorder_window_s: f64,
+    /// A sensor that sends nothing for this long (s) no longer holds the
+    /// reorder buffer or takes part in the clock comparison.
+    #[serde(default = "serve_default::reorder_idle_s")]
+    pub reorder_idle_s: f64,
+    /// Sensor clocks further apart than this (s) disagree: the odd one out
+    /// is reported ahead or behind, and does not hold the others back.
+    #[serde(default = "serve_default::reorder_max_skew_s")]
+    pub reorder_max_skew_s: f64,
+    /// Most records held in the reorder buffer at once.
+    #[serde(default = "serve_default::reorder_max_held")]
+    pub reorder_max_held: usize,
+    /// Release a radar's scan at its scan_end without waiting for the
+    /// window, while that radar's records come in order.
+    #[serde(default)]
+    pub reorder_scan_end_closes: bool,
+    /// Records queued between the ingest tasks and the reorder buffer; a
+    /// full queue drops and counts.
+    #[serde(default = "serve_default::ingest_queue")]
+    pub ingest_queue: usize,
+    /// Ordered batches queued for the engine task.
+    #[serde(default = "serve_default::engine_queue")]
+    pub engine_queue: usize,
+    /// Updates queued per subscriber; a subscriber further behind skips.
+    #[serde(default = "serve_default::subscriber_queue")]
+    pub subscriber_queue: usize,
+    /// Most picture subscribers at once.
+    #[serde(default = "serve_default::max_subscribers")]
+    pub max_subscribers: usize,
+    /// Period of the health figures (rates, the health stream), seconds.
+    #[serde(default = "serve_default::health_interval_s")]
+    pub health_interval_s: f64,
+    /// A radar silent for more than this many of its scan periods makes
+    /// the daemon degraded.
+    #[serde(default = "serve_default::silent_scans")]
+    pub silent_scans: f64,
+    /// A transponder silent for longer than this (s) makes the daemon
+    /// degraded.
+    #[serde(default = "serve_default::transponder_silent_s")]
+    pub transponder_silent_s: f64,
+    /// A queue fuller than this fraction makes the daemon degraded.
+    #[serde(default = "serve_default::queue_warn_fraction")]
+    pub queue_warn_fraction: f64,
+    /// At shutdown, how long subscribers get to read what is queued for
+    /// them (s).
+    #[serde(default = "serve_default::shutdown_flush_s")]
+    pub shutdown_flush_s: f64,
+    /// Bad input is logged at most once per sensor and reason per this
+    /// many seconds, with the count of lines suppressed.
+    #[serde(default = "serve_default::bad_input_log_interval_s")]
+    pub bad_input_log_interval_s: f64,
+    /// Log lines as JSON objects instead of text.
+    #[serde(default)]
+    pub log_json: bool,
+}
+
+/// Defaults of the [serve] keys (also written in defaults.toml).
+mod serve_default {
+    pub fn udp_recv_buffer_bytes() -> usize {
+        8 << 20
+    }
+    pub fn reorder_window_s() -> f64 {
+        1.0
+    }
+    pub fn reorder_idle_s() -> f64 {
+        10.0
+    }
+    pub fn reorder_max_skew_s() -> f64 {
+        30.0
+    }
+    pub fn reorder_max_held() -> usize {
+        500_000
+    }
+    pub fn ingest_queue() -> usize {
+        65_536
+    }
+    pub fn engine_queue() -> usize {
+        64
+    }
+    pub fn subscriber_queue() -> usize {
+        4096
+    }
+    pub fn max_subscribers() -> usize {
+        256
+    }
+    pub fn health_interval_s() -> f64 {
+        1.0
+    }
+    pub fn silent_scans() -> f64 {
+        3.0
+    }
+    pub fn transponder_silent_s() -> f64 {
+        600.0
+    }
+    pub fn queue_warn_fraction() -> f64 {
+        0.8
+    }
+    pub fn shutdown_flush_s() -> f64 {
+        2.0
+    }
+    pub fn bad_input_log_interval_s() -> f64 {
+        10.0
+    }
 }
 
 #[derive(Clone, Debug, Serialize, Deserialize)]

@@ -3,9 +3,13 @@
 
 pub mod cli;
 pub mod config;
+pub mod daemon;
 pub mod engine;
 pub mod feed;
 pub mod geo;
 pub mod offline;
+pub mod reorder;
+pub mod score;
+pub mod sim;
 pub mod stats;
 pub mod time;

@@ -36,18 +36,24 @@
 //! columns that share the current minimum distance at once. For rectangular
 //! problems the column duals start at zero and only ever decrease on columns
 //! that are (or become) assigned, so every unassigned column keeps the same
-//! dual; this is the optimality condition for the rectangular case given by
-//! Crouse (2016), "On implementing 2D rectangular assignment algorithms",
-//! IEEE T-AES 52(4). JV's column reduction is therefore not used (it would
-//! give unassigned columns unequal duals).
+//! dual; this is the optimality condition for the rectangular case
+//! discussed by Crouse (2016), "On implementing 2D rectangular assignment
+//! algorithms", IEEE T-AES 52(4) (from memory; the condition itself is the
+//! complementary slackness of the LP with `Σ_i x_ij ≤ 1`, and the brute
+//! force and scipy tests check the result). JV's column reduction is
+//! therefore not used (it would give unassigned columns unequal duals).
 //!
 //! The sparse front end unions the allowed pairs into connected clusters.
 //! A cluster with a single row or a single column is decided directly; a
 //! larger one becomes a small dense problem of `n_r × (n_c + n_r)`: row i
 //! may take column j at `cost(i, j) − col_alone[j]` or its own private
-//! "stay alone" column at `row_alone[i]`, and `Σ col_alone` of the cluster
-//! is added back as a constant. Every row has its private column, so the
-//! small problem is always feasible.
+//! "stay alone" column at `row_alone[i]`; its optimum plus the cluster's
+//! `Σ col_alone` is the cluster's objective, so its argmin is the
+//! cluster's. Every row has its private column, so the small problem is
+//! always feasible. The returned total is summed from the choices, in row
+//! then column index order. The dense form costs O(n_r·(n_c + n_r))
+//! memory and up to cubic time per cluster: fine for gated scans, where
+//! clusters are a few tens of plots, not meant for one giant cluster.
 
 const NONE: usize = usize::MAX;
 
@@ -162,7 +168,7 @@ impl LapSolver {
         Ok(total)
     }
 
-    /// Augmenting row reduction (Jonker & Volgenant 1987, §4): each free
+    /// Augmenting row reduction (Jonker & Volgenant 1987): each free
     /// row takes its cheapest column by reduced cost and lowers that
     /// column's dual by the gap to its second cheapest, displacing the
     /// previous holder, which bids again. Leaves the rows it could not
@@ -241,7 +247,7 @@ impl LapSolver {
 
     /// One Dijkstra search over reduced costs from free row `f` to the
     /// nearest free column, then the dual update and the flip of the
-    /// alternating path (Jonker & Volgenant 1987, §4, procedure AUGMENT).
+    /// alternating path (Jonker & Volgenant 1987, the augmentation procedure).
     fn augment(&mut self, f: usize, cols: usize, cost: &[f64]) -> Result<(), AssignError> {
         let v = &mut self.v[..cols];
         let dist = &mut self.dist[..cols];

@@ -1,0 +1,367 @@
+//! Ingest: UDP datagrams and gRPC client streams in, checked records out
+//! to the reorder task.
+//!
+//! # UDP datagrams
+//!
+//! A datagram is either
+//! - JSON lines: one or more whole contract lines (CONTRACT.md §1)
+//!   separated by `\n`; its first byte is `{` or white space; or
+//! - protobuf: the byte `0x00` followed by one encoded
+//!   `skerry.v1.FeedBatch` (proto/skerry/v1/records.proto).
+//!
+//! Valid JSON text can never begin with a 0x00 byte, so the first byte
+//! tells the two apart without ambiguity. A datagram longer than
+//! `feed.max_record_bytes` is rejected whole as `oversize`.
+//!
+//! # Checks and counts
+//!
+//! Every record is decoded (the same checks for both codecs), its time is
+//! checked against the daemon's clock (`feed.max_time_offset_s`), and its
+//! source address against the sensor's `allow_from` list. Each outcome is
+//! counted under the sensor the record named. Bad input is logged at most
+//! once per sensor and reason per `serve.bad_input_log_interval_s`, with
+//! the number of lines held back.
+//!
+//! The queue to the reorder task is bounded and filled with `try_send`: a
+//! full queue drops the record and counts it; ingest never waits.
+
+use super::clock::DaemonClock;
+use super::metrics::{self, Metrics};
+use super::proto::{self, v1};
+use crate::feed::{self, Record, Reject, RejectReason, Screen, SensorId, SensorTable};
+use crate::time::Timestamp;
+use prost::Message;
+use std::collections::HashMap;
+use std::net::{IpAddr, SocketAddr};
+use std::sync::atomic::Ordering::Relaxed;
+use std::sync::{Arc, Mutex};
+use tokio::sync::mpsc;
+use tokio_util::sync::CancellationToken;
+use tokio_util::task::TaskTracker;
+
+/// A checked record and the daemon-clock instant it arrived.
+#[derive(Debug)]
+pub struct Arrival {
+    pub rec: Record,
+    pub at: Timestamp,
+}
+
+/// First byte of a protobuf datagram.
+pub const PROTOBUF_MARK: u8 = 0x00;
+
+/// An address range on a sensor's allow-list: an address or a CIDR prefix.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct AllowRange {
+    net: IpAddr,
+    prefix: u8,
+}
+
+impl AllowRange {
+    /// `10.0.0.5`, `10.0.0.0/24`, `::1`, `fd00::/8` (a port, as in
+    /// `10.0.0.5:4000`, is accepted and ignored).
+    pub fn parse(s: &str) -> Result<AllowRange, String> {
+        let s = s.trim();
+        if let Ok(sa) = s.parse::<SocketAddr>() {
+            let prefix = if sa.is_ipv4() { 32 } else { 128 };
+            return Ok(AllowRange { net: sa.ip(), prefix });
+        }
+        let (addr, prefix) = match s.split_once('/') {
+            Some((a, p)) => (a, Some(p)),
+            None => (s, None),
+        };
+        let net: IpAddr = addr.parse().map_err(|_| format!("`{s}` is not an IP address or prefix"))?;
+        let max = if net.is_ipv4() { 32 } else { 128 };
+        let prefix = match prefix {
+            None => max,
+            Some(p) => p.parse::<u8>().ok().filter(|p| *p <= max).ok_or_else(|| format!("`{s}`: prefix length must be 0..={max}"))?,
+        };
+        Ok(AllowRange { net, prefix })
+    }
+
+    pub fn contains(&self, ip: IpAddr) -> bool {
+        // An IPv4 peer seen on an IPv6 socket is compared as IPv4.
+        let ip = match ip {
+            IpAddr::V6(v6) => v6.to_ipv4_mapped().map(IpAddr::V4).unwrap_or(ip),
+            v4 => v4,
+        };
+        match (self.net, ip) {
+            (IpAddr::V4(n), IpAddr::V4(a)) => {
+                let mask = if self.prefix == 0 { 0 } else { u32::MAX << (32 - self.prefix as u32) };
+                u32::from(n) & mask == u32::from(a) & mask
+            }
+            (IpAddr::V6(n), IpAddr::V6(a)) => {
+                let mask = if self.prefix == 0 { 0 } else { u128::MAX << (128 - self.prefix as u32) };
+                u128::from(n) & mask == u128::from(a) & mask
+            }
+            _ => false,
+        }
+    }
+}
+
+/// At most one log line per key per interval, with the count held back.
+/// Pure: the time is passed in.
+#[derive(Debug)]
+pub struct LogLimiter {
+    interval_s: f64,
+    seen: HashMap<(Option<SensorId>, &'static str), (Timestamp, u64)>,
+}
+
+impl LogLimiter {
+    pub fn new(interval_s: f64) -> Self {
+        LogLimiter { interval_s, seen: HashMap::new() }
+    }
+
+    /// `Some(n)`: log now, `n` similar lines were held back since the last
+    /// one; `None`: hold this one back.
+    pub fn check(&mut self, sensor: Option<SensorId>, reason: &'static str, now: Timestamp) -> Option<u64> {
+        match self.seen.get_mut(&(sensor, reason)) {
+            Some((last, held)) if now.secs_since(*last) < self.interval_s => {
+                *held += 1;
+                None
+            }
+            Some((last, held)) => {
+                let n = *held;
+                *last = now;
+                *held = 0;
+                Some(n)
+            }
+            None => {
+                self.seen.insert((sensor, reason), (now, 0));
+                Some(0)
+            }
+        }
+    }
+}
+
+/// What every ingest task shares.
+pub struct IngestContext {
+    pub sensors: SensorTable,
+    /// Per sensor; empty: any source.
+    pub allow: Vec<Vec<AllowRange>>,
+    pub max_record_bytes: usize,
+    pub max_time_offset_s: f64,
+    pub metrics: Arc<Metrics>,
+    pub clock: DaemonClock,
+    pub tx: mpsc::Sender<Arrival>,
+    pub log: Mutex<LogLimiter>,
+    /// Cancelled when shutdown starts: ingest stops.
+    pub cancel: CancellationToken,
+    /// Tracks the ingest tasks and streams, so the reorder task knows when
+    /// the last record has been queued.
+    pub tracker: TaskTracker,
+}
+
+/// Counts of one batch of input (a datagram, a stream).
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct Tally {
+    pub received: u64,
+    pub accepted: u64,
+    pub rejected: HashMap<&'static str, u64>,
+    pub dropped: u64,
+}
+
+impl IngestContext {
+    fn rejected(&self, r: &Reject, src: Option<SocketAddr>, now: Timestamp, tally: &mut Tally) {
+        self.rejected_key(r.sensor, metrics::reason_of(&r.reason), &r.reason.to_string(), src, now, tally);
+    }
+
+    fn rejected_key(&self, sensor: Option<SensorId>, reason: usize, text: &str, src: Option<SocketAddr>, now: Timestamp, tally: &mut Tally) {
+        let key = metrics::REASONS[reason];
+        self.metrics.reject(sensor, reason);
+        *tally.rejected.entry(key).or_default() += 1;
+        let held = self.log.lock().ok().and_then(|mut l| l.check(sensor, key, now));
+        if let Some(held) = held {
+            let name = sensor.map(|s| self.sensors.name(s)).unwrap_or("(unknown)");
+            let src = src.map(|s| s.to_string()).unwrap_or_default();
+            if held > 0 {
+                tracing::warn!(sensor = name, reason = key, source = %src, held_back = held, "bad input: {text} ({held} similar held back)");
+            } else {
+                tracing::warn!(sensor = name, reason = key, source = %src, "bad input: {text}");
+            }
+        }
+    }
+
+    /// Checks one decoded (or refused) record and queues it.
+    pub fn admit(&self, decoded: Result<Record, Reject>, src: Option<SocketAddr>, now: Timestamp, tally: &mut Tally) {
+        tally.received += 1;
+        let sensor = match &decoded {
+            Ok(r) => Some(r.sensor()),
+            Err(e) => e.sensor,
+        };
+        let c = self.metrics.sensor(sensor);
+        c.received.fetch_add(1, Relaxed);
+        if sensor.is_some() {
+            c.last_seen_ns.store(now.unix_nanos(), Relaxed);
+        }
+        let rec = match decoded {
+            Ok(r) => r,
+            Err(e) => return self.rejected(&e, src, now, tally),
+        };
+        let s = rec.sensor();
+        if let (Some(list), Some(src)) = (self.allow.get(s as usize), src) {
+            if !list.is_empty() && !list.iter().any(|a| a.contains(src.ip())) {
+                let text = format!("source {} is not on the allow-list of sensor {}", src.ip(), self.sensors.name(s));
+                return self.rejected_key(Some(s), metrics::reason_index("not_allowed"), &text, Some(src), now, tally);
+            }
+        }
+        // Plausibility against the daemon's clock, before ordering: a wild
+        // time must not reach the reorder buffer's sensor clocks.
+        let mut screen = Screen::new(Some(now), self.max_time_offset_s);
+        screen.set_reference(now);
+        if let Err(e) = screen.plausible(&rec) {
+            return self.rejected(&e, src, now, tally);
+        }
+        match self.tx.try_send(Arrival { rec, at: now }) {
+            Ok(()) => {
+                c.accepted.fetch_add(1, Relaxed);
+                tally.accepted += 1;
+            }
+            Err(_) => {
+                self.metrics.dropped_ingest_queue.fetch_add(1, Relaxed);
+                tally.dropped += 1;
+            }
+        }
+    }
+
+    /// Decodes and queues the records of one datagram.
+    pub fn datagram(&self, buf: &[u8], src: Option<SocketAddr>, now: Timestamp) -> Tally {
+        let mut tally = Tally::default();
+        self.metrics.datagrams.fetch_add(1, Relaxed);
+        self.metrics.datagram_bytes.fetch_add(buf.len() as u64, Relaxed);
+        if buf.len() > self.max_record_bytes {
+            let r = Reject { reason: RejectReason::Oversize, sensor: None };
+            tally.received += 1;
+            self.metrics.sensor(None).received.fetch_add(1, Relaxed);
+            self.rejected(&r, src, now, &mut tally);
+            return tally;
+        }
+        if buf.first() == Some(&PROTOBUF_MARK) {
+            match v1::FeedBatch::decode(&buf[1..]) {
+                Ok(batch) => {
+                    for m in &batch.records {
+                        self.admit(proto::to_record(m, &self.sensors), src, now, &mut tally);
+                    }
+                }
+                Err(_) => {
+                    tally.received += 1;
+                    self.metrics.sensor(None).received.fetch_add(1, Relaxed);
+                    let r = Reject { reason: RejectReason::BadJson, sensor: None };
+                    self.rejected_key(None, metrics::reason_of(&r.reason), "not a valid protobuf FeedBatch", src, now, &mut tally);
+                }
+            }
+            return tally;
+        }
+        for line in buf.split(|&b| b == b'\n') {
+            if line.iter().all(u8::is_ascii_whitespace) {
+                continue;
+            }
+            self.admit(feed::decode_line(line, &self.sensors), src, now, &mut tally);
+        }
+        tally
+    }
+}
+
+/// The UDP receive loop, until cancelled.
+pub async fn udp_task(ctx: Arc<IngestContext>, sock: tokio::net::UdpSocket) {
+    // One byte more than the limit, to see that a datagram is too long.
+    let mut buf = vec![0u8; (ctx.max_record_bytes + 1).clamp(2, 65_536)];
+    loop {
+        tokio::select! {
+            biased;
+            _ = ctx.cancel.cancelled() => break,
+            r = sock.recv_from(&mut buf) => match r {
+                Ok((n, src)) => {
+                    let now = ctx.clock.now();
+                    // The buffer is one byte longer than the limit: a longer
+                    // datagram is cut there and still seen as too long.
+                    ctx.datagram(&buf[..n], Some(src), now);
+                }
+                Err(e) => {
+                    // ICMP errors surface here on some systems; keep going.
+                    tracing::debug!(error = %e, "udp receive error");
+                }
+            }
+        }
+    }
+    tracing::debug!("udp ingest stopped");
+}
+
+/// The gRPC ingest service.
+pub struct IngestService {
+    pub ctx: Arc<IngestContext>,
+}
+
+#[tonic::async_trait]
+impl v1::ingest_server::Ingest for IngestService {
+    async fn send(&self, req: tonic::Request<tonic::Streaming<v1::FeedRecord>>) -> Result<tonic::Response<v1::SendSummary>, tonic::Status> {
+        // Counted as an ingest task until it returns, so that shutdown
+        // drains what it queued.
+        let _guard = self.ctx.tracker.token();
+        if self.ctx.cancel.is_cancelled() {
+            return Err(tonic::Status::unavailable("shutting down"));
+        }
+        self.ctx.metrics.grpc_streams.fetch_add(1, Relaxed);
+        let src = req.remote_addr();
+        let mut stream = req.into_inner();
+        let mut tally = Tally::default();
+        loop {
+            tokio::select! {
+                biased;
+                _ = self.ctx.cancel.cancelled() => break,
+                m = stream.message() => match m {
+                    Ok(Some(m)) => {
+                        let now = self.ctx.clock.now();
+                        self.ctx.admit(proto::to_record(&m, &self.ctx.sensors), src, now, &mut tally);
+                    }
+                    Ok(None) => break,
+                    Err(e) => {
+                        tracing::info!(error = %e, "ingest stream ended with an error");
+                        break;
+                    }
+                }
+            }
+        }
+        Ok(tonic::Response::new(v1::SendSummary {
+            received: tally.received,
+            accepted: tally.accepted,
+            rejected: tally.rejected.into_iter().map(|(k, v)| (k.to_string(), v)).collect(),
+            dropped: tally.dropped,
+        }))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn allow_ranges() {
+        let a = AllowRange::parse("10.1.2.0/24").unwrap();
+        assert!(a.contains("10.1.2.77".parse().unwrap()));
+        assert!(!a.contains("10.1.3.1".parse().unwrap()));
+        assert!(a.contains("::ffff:10.1.2.3".parse().unwrap()));
+        let b = AllowRange::parse("127.0.0.1:4000").unwrap();
+        assert!(b.contains("127.0.0.1".parse().unwrap()));
+        assert!(!b.contains("127.0.0.2".parse().unwrap()));
+        let c = AllowRange::parse("fd00::/8").unwrap();
+        assert!(c.contains("fd12::1".parse().unwrap()));
+        assert!(!c.contains("fe80::1".parse().unwrap()));
+        assert!(AllowRange::parse("0.0.0.0/0").unwrap().contains("8.8.8.8".parse().unwrap()));
+        assert!(AllowRange::parse("10.0.0.0/33").is_err());
+        assert!(AllowRange::parse("harbour").is_err());
+    }
+
+    #[test]
+    fn log_limiter_holds_back_within_the_interval() {
+        let mut l = LogLimiter::new(10.0);
+        let t = |s: f64| Timestamp::from_unix_secs_f64(1000.0 + s);
+        assert_eq!(l.check(Some(0), "bad_json", t(0.0)), Some(0));
+        assert_eq!(l.check(Some(0), "bad_json", t(1.0)), None);
+        assert_eq!(l.check(Some(0), "bad_json", t(9.9)), None);
+        // Another sensor or reason has its own allowance.
+        assert_eq!(l.check(Some(1), "bad_json", t(2.0)), Some(0));
+        assert_eq!(l.check(Some(0), "non_finite", t(2.0)), Some(0));
+        assert_eq!(l.check(Some(0), "bad_json", t(10.0)), Some(2));
+        assert_eq!(l.check(Some(0), "bad_json", t(10.5)), None);
+    }
+}

@@ -1,0 +1,411 @@
+//! The live service, `skerry serve`, and its two clients, `skerry replay`
+//! and `skerry watch`.
+//!
+//! ```text
+//!  UDP (JSON lines | 0x00+protobuf) ─┐
+//!  gRPC Ingest.Send (client stream) ─┴► ingest ──► reorder task ──► engine task ──► publisher ──► Picture.Subscribe streams
+//!    decode, check, count      bounded   (feed-time   bounded  (screen,   try_send per
+//!    (never waits: a full      queue     ordering)    queue    Tracker)   subscriber queue)
+//!     queue drops and counts)                                     │
+//!                                              shared Metrics ◄───┴──► HTTP /metrics, /healthz; Monitor.Health
+//! ```
+//!
+//! One file per concern: [`ingest`] (UDP and gRPC input), [`sequencer`]
+//! (the task around the pure [`crate::reorder`] buffer), [`engine_task`]
+//! (the sole owner of the tracks), [`publisher`] (fan-out), [`grpc`]
+//! (picture and health services), [`http`] (metrics and health check),
+//! [`metrics`] (the shared figures), [`proto`] (generated code and
+//! conversions), and the command-line edges [`serve`], [`replay`],
+//! [`watch`].
+//!
+//! [`run`] starts the whole service on sockets bound beforehand (port 0 in
+//! tests) and returns when `shutdown` is cancelled and the service has
+//! stopped in order: ingest stops, the reorder buffer is drained through
+//! the engine (`finish`), the subscribers get what is queued for them (for
+//! up to `serve.shutdown_flush_s`), and the servers close.
+
+pub mod clock;
+pub mod engine_task;
+pub mod grpc;
+pub mod http;
+pub mod ingest;
+pub mod metrics;
+pub mod proto;
+pub mod publisher;
+pub mod replay;
+pub mod sequencer;
+pub mod serve;
+pub mod watch;
+
+pub use engine_task::Tracker;
+pub use replay::{ReplayArgs, replay_main};
+pub use serve::{ServeArgs, serve_main};
+pub use watch::{WatchArgs, watch_main};
+
+use crate::config::{Config, ServeConfig};
+use crate::engine::{Engine, EngineError};
+use crate::feed::Screen;
+use crate::reorder::{Reorder, ReorderConfig};
+use clock::DaemonClock;
+use engine_task::EngineTask;
+use ingest::{AllowRange, IngestContext, IngestService, LogLimiter};
+use metrics::Metrics;
+use proto::v1;
+use publisher::Publisher;
+use sequencer::Sequencer;
+use std::net::SocketAddr;
+use std::sync::atomic::Ordering::Relaxed;
+use std::sync::{Arc, Mutex};
+use std::time::Duration;
+use tokio::net::{TcpListener, UdpSocket};
+use tokio::sync::mpsc;
+use tokio_util::sync::CancellationToken;
+use tokio_util::task::TaskTracker;
+
+#[derive(Debug, thiserror::Error)]
+pub enum DaemonError {
+    #[error("`{key}`: {message}")]
+    Config { key: String, message: String },
+    #[error("cannot listen on {what} {addr}: {source}")]
+    Bind { what: &'static str, addr: String, source: std::io::Error },
+    #[error("engine: {0}")]
+    Engine(#[from] EngineError),
+    #[error("gRPC server: {0}")]
+    Grpc(#[from] tonic::transport::Error),
+    #[error("gRPC reflection: {0}")]
+    Reflection(#[from] tonic_reflection::server::Error),
+    #[error("HTTP server: {0}")]
+    Http(std::io::Error),
+    #[error("a daemon task failed: {0}")]
+    Task(#[from] tokio::task::JoinError),
+}
+
+/// The daemon's sockets, bound before [`run`] so that tests can use port 0
+/// and read the addresses.
+pub struct Listeners {
+    pub udp: UdpSocket,
+    pub grpc: TcpListener,
+    pub http: TcpListener,
+}
+
+/// The addresses the [`Listeners`] are bound to.
+#[derive(Copy, Clone, Debug, PartialEq, Eq)]
+pub struct LocalAddrs {
+    pub udp: SocketAddr,
+    pub grpc: SocketAddr,
+    pub http: SocketAddr,
+}
+
+fn parse_addr(key: &str, s: &str) -> Result<SocketAddr, DaemonError> {
+    s.parse().map_err(|_| DaemonError::Config { key: key.into(), message: format!("`{s}` is not an address like 127.0.0.1:4100") })
+}
+
+impl Listeners {
+    /// Binds the addresses of the `[serve]` section.
+    pub async fn bind(serve: &ServeConfig) -> Result<Listeners, DaemonError> {
+        let udp = parse_addr("serve.udp_addr", &serve.udp_addr)?;
+        let grpc = parse_addr("serve.grpc_addr", &serve.grpc_addr)?;
+        let http = parse_addr("serve.http_addr", &serve.http_addr)?;
+        Self::bind_addrs(udp, grpc, http, serve.udp_recv_buffer_bytes).await
+    }
+
+    /// Binds the given addresses; the UDP socket asks for a receive buffer
+    /// of `udp_recv_buffer` bytes.
+    pub async fn bind_addrs(udp: SocketAddr, grpc: SocketAddr, http: SocketAddr, udp_recv_buffer: usize) -> Result<Listeners, DaemonError> {
+        let bind_err = |what: &'static str, addr: SocketAddr| move |source| DaemonError::Bind { what, addr: addr.to_string(), source };
+        let udp_sock = udp_socket(udp, udp_recv_buffer).map_err(bind_err("UDP", udp))?;
+        let grpc_l = TcpListener::bind(grpc).await.map_err(bind_err("gRPC", grpc))?;
+        let http_l = TcpListener::bind(http).await.map_err(bind_err("HTTP", http))?;
+        Ok(Listeners { udp: udp_sock, grpc: grpc_l, http: http_l })
+    }
+
+    /// Binds every socket to port 0 on 127.0.0.1 (tests).
+    pub async fn loopback() -> Result<Listeners, DaemonError> {
+        let any: SocketAddr = SocketAddr::from(([127, 0, 0, 1], 0));
+        Self::bind_addrs(any, any, any, 8 << 20).await
+    }
+
+    pub fn local_addrs(&self) -> std::io::Result<LocalAddrs> {
+        Ok(LocalAddrs { udp: self.udp.local_addr()?, grpc: self.grpc.local_addr()?, http: self.http.local_addr()? })
+    }
+}
+
+/// A UDP socket with its receive buffer sized: bursts of plots arrive
+/// faster than one task reads them, and the kernel drops what does not fit.
+fn udp_socket(addr: SocketAddr, recv_buffer: usize) -> std::io::Result<UdpSocket> {
+    use socket2::{Domain, Protocol, Socket, Type};
+    let sock = Socket::new(Domain::for_address(addr), Type::DGRAM, Some(Protocol::UDP))?;
+    if recv_buffer > 0 {
+        if let Err(e) = sock.set_recv_buffer_size(recv_buffer) {
+            tracing::warn!(error = %e, "cannot set the UDP receive buffer size");
+        }
+        let got = sock.recv_buffer_size().unwrap_or(0);
+        // Linux reports twice the granted size (it counts its bookkeeping).
+        if got < recv_buffer {
+            tracing::info!(requested = recv_buffer, granted = got, "UDP receive buffer is smaller than asked (see net.core.rmem_max)");
+        }
+    }
+    sock.set_nonblocking(true)?;
+    sock.bind(&addr.into())?;
+    UdpSocket::from_std(sock.into())
+}
+
+/// What the service did, returned by [`run`] when it has stopped.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct RunSummary {
+    /// Records read from every input.
+    pub received: u64,
+    /// Passed the ingest checks and queued.
+    pub accepted: u64,
+    /// Rejected at ingest (bad input, implausible time, not allowed).
+    pub rejected: u64,
+    /// Accepted, then too late for the reorder window.
+    pub late: u64,
+    /// Accepted, then screened out as exact duplicates.
+    pub duplicates: u64,
+    /// Accepted, then dropped because a queue or the buffer was full.
+    pub dropped: u64,
+    /// Handed to the engine.
+    pub processed: u64,
+    /// Track records the engine made.
+    pub track_records: u64,
+}
+
+impl RunSummary {
+    /// Every accepted record is accounted for: processed, late, duplicate
+    /// or dropped by a full reorder buffer.
+    pub fn accounted(&self) -> bool {
+        self.accepted == self.processed + self.late + self.duplicates + (self.dropped_after_accept())
+    }
+    fn dropped_after_accept(&self) -> u64 {
+        // Ingest-queue drops are never counted as accepted; only the
+        // reorder buffer's are.
+        self.dropped
+    }
+}
+
+/// The reorder buffer's settings from `[serve]`.
+pub fn reorder_config(s: &ServeConfig) -> ReorderConfig {
+    ReorderConfig {
+        window_s: s.reorder_window_s,
+        idle_s: s.reorder_idle_s,
+        max_skew_s: s.reorder_max_skew_s,
+        max_held: s.reorder_max_held,
+        scan_end_closes: s.reorder_scan_end_closes,
+    }
+}
+
+/// Checks the `[serve]` keys and the sensors' `allow_from` lists (the
+/// lists come back parsed, by sensor).
+pub fn check_settings(cfg: &Config) -> Result<Vec<Vec<AllowRange>>, DaemonError> {
+    let s = &cfg.serve;
+    let bad = |key: &str, message: String| DaemonError::Config { key: format!("serve.{key}"), message };
+    for (k, v) in [
+        ("reorder_window_s", s.reorder_window_s),
+        ("reorder_idle_s", s.reorder_idle_s),
+        ("reorder_max_skew_s", s.reorder_max_skew_s),
+        ("health_interval_s", s.health_interval_s),
+        ("silent_scans", s.silent_scans),
+        ("transponder_silent_s", s.transponder_silent_s),
+        ("bad_input_log_interval_s", s.bad_input_log_interval_s),
+    ] {
+        if !(v.is_finite() && v > 0.0) {
+            return Err(bad(k, format!("must be a positive number (got {v})")));
+        }
+    }
+    if !(s.shutdown_flush_s.is_finite() && s.shutdown_flush_s >= 0.0) {
+        return Err(bad("shutdown_flush_s", "must be ≥ 0".into()));
+    }
+    if s.reorder_idle_s < s.reorder_window_s {
+        return Err(bad("reorder_idle_s", format!("must be at least reorder_window_s ({})", s.reorder_window_s)));
+    }
+    if !(s.queue_warn_fraction > 0.0 && s.queue_warn_fraction <= 1.0) {
+        return Err(bad("queue_warn_fraction", "must be in (0, 1]".into()));
+    }
+    for (k, v) in [
+        ("ingest_queue", s.ingest_queue),
+        ("engine_queue", s.engine_queue),
+        ("subscriber_queue", s.subscriber_queue),
+        ("max_subscribers", s.max_subscribers),
+        ("reorder_max_held", s.reorder_max_held),
+    ] {
+        if v == 0 {
+            return Err(bad(k, "must be at least 1".into()));
+        }
+    }
+    if cfg.feed.max_record_bytes == 0 {
+        return Err(DaemonError::Config { key: "feed.max_record_bytes".into(), message: "must be at least 1".into() });
+    }
+    let mut allow = Vec::new();
+    for (i, sensor) in cfg.sensors.iter().enumerate() {
+        let mut list = Vec::new();
+        for (j, a) in sensor.allow_from.iter().enumerate() {
+            list.push(AllowRange::parse(a).map_err(|m| DaemonError::Config { key: format!("sensors[{i}].allow_from[{j}]"), message: m })?);
+        }
+        allow.push(list);
+    }
+    Ok(allow)
+}
+
+/// Runs the service with the real tracking engine until `shutdown` is
+/// cancelled; see the module docs.
+pub async fn run(cfg: Config, listeners: Listeners, shutdown: CancellationToken) -> Result<RunSummary, DaemonError> {
+    let engine = Engine::new(&cfg)?;
+    run_with(cfg, listeners, shutdown, engine).await
+}
+
+/// [`run`] with any [`Tracker`].
+pub async fn run_with<T: Tracker>(cfg: Config, listeners: Listeners, shutdown: CancellationToken, tracker: T) -> Result<RunSummary, DaemonError> {
+    let allow = check_settings(&cfg)?;
+    let addrs = listeners.local_addrs().map_err(DaemonError::Http)?;
+    let s = cfg.serve.clone();
+    let clock = DaemonClock::start();
+    let metrics = Arc::new(Metrics::new(&cfg, clock.now()));
+
+    // Ingest → reorder: bounded, filled with try_send (ingest never waits).
+    let (arrival_tx, arrival_rx) = mpsc::channel(s.ingest_queue);
+    // Reorder → engine: bounded; the reorder task waits on it, which backs
+    // up into the ingest queue when the engine falls behind.
+    let (batch_tx, batch_rx) = mpsc::channel(s.engine_queue);
+    // Subscription requests to the engine task, which owns the picture.
+    let (control_tx, control_rx) = mpsc::channel(64);
+    // The engine task is done: the servers may close.
+    let drained = CancellationToken::new();
+    let ingest_tasks = TaskTracker::new();
+    let tasks = TaskTracker::new();
+
+    let ctx = Arc::new(IngestContext {
+        sensors: cfg.sensor_table(),
+        allow,
+        max_record_bytes: cfg.feed.max_record_bytes,
+        max_time_offset_s: cfg.feed.max_time_offset_s,
+        metrics: metrics.clone(),
+        clock,
+        tx: arrival_tx,
+        log: Mutex::new(LogLimiter::new(s.bad_input_log_interval_s)),
+        cancel: shutdown.clone(),
+        tracker: ingest_tasks.clone(),
+    });
+    ingest_tasks.spawn(ingest::udp_task(ctx.clone(), listeners.udp));
+    ingest_tasks.close();
+
+    // The reorder task ticks often enough to release a quiet feed close
+    // to when it is due, and no more than 100 times a second.
+    let tick = Duration::from_secs_f64((s.reorder_window_s / 10.0).clamp(0.01, 0.1));
+    tasks.spawn(
+        Sequencer {
+            reorder: Reorder::new(reorder_config(&s)),
+            rx: arrival_rx,
+            tx: batch_tx,
+            metrics: metrics.clone(),
+            clock,
+            tick,
+            cancel: shutdown.clone(),
+            ingest: ingest_tasks.clone(),
+        }
+        .run(),
+    );
+    let engine = tokio::spawn(
+        EngineTask {
+            tracker,
+            // Duplicates only: the time check is made at ingest.
+            screen: Screen::new(None, cfg.feed.max_time_offset_s),
+            batches: batch_rx,
+            control: control_rx,
+            publisher: Publisher::new(s.subscriber_queue, s.max_subscribers, Some(metrics.clone())),
+            metrics: metrics.clone(),
+        }
+        .run(),
+    );
+    tasks.spawn(rates_task(metrics.clone(), Duration::from_secs_f64(s.health_interval_s), drained.clone()));
+
+    let (health, health_service) = tonic_health::server::health_reporter();
+    health.set_serving::<v1::ingest_server::IngestServer<IngestService>>().await;
+    health.set_serving::<v1::picture_server::PictureServer<grpc::PictureService>>().await;
+    health.set_serving::<v1::monitor_server::MonitorServer<grpc::MonitorService>>().await;
+    let reflection = tonic_reflection::server::Builder::configure().register_encoded_file_descriptor_set(proto::FILE_DESCRIPTOR_SET).build_v1()?;
+    let grpc_server = tonic::transport::Server::builder()
+        .add_service(v1::ingest_server::IngestServer::new(IngestService { ctx: ctx.clone() }))
+        .add_service(v1::picture_server::PictureServer::new(grpc::PictureService { control: control_tx }))
+        .add_service(v1::monitor_server::MonitorServer::new(grpc::MonitorService { metrics: metrics.clone(), clock, interval_s: s.health_interval_s, cancel: shutdown.clone() }))
+        .add_service(health_service)
+        .add_service(reflection)
+        .serve_with_incoming_shutdown(tonic::transport::server::TcpIncoming::from(listeners.grpc), drained.clone().cancelled_owned());
+    let flush = Duration::from_secs_f64(s.shutdown_flush_s);
+    let flush_deadline = drained.clone();
+    let grpc_task = tokio::spawn(async move {
+        tokio::select! {
+            r = grpc_server => r.map_err(DaemonError::Grpc),
+            _ = async { flush_deadline.cancelled().await; tokio::time::sleep(flush).await } => {
+                tracing::warn!("subscribers still reading after {:.1} s: closing their streams", flush.as_secs_f64());
+                Ok(())
+            }
+        }
+    });
+    let router = http::router(http::HttpState { metrics: metrics.clone(), clock });
+    let http_task = tokio::spawn(axum::serve(listeners.http, router).with_graceful_shutdown(drained.clone().cancelled_owned()).into_future());
+    tracing::info!(udp = %addrs.udp, grpc = %addrs.grpc, http = %addrs.http, sensors = cfg.sensors.len(), "skerry serving");
+
+    shutdown.cancelled().await;
+    tracing::info!("shutting down: ingest stopped, draining the reorder buffer through the engine");
+    health.set_not_serving::<v1::ingest_server::IngestServer<IngestService>>().await;
+    let engine_summary = engine.await?;
+    drained.cancel();
+    grpc_task.await??;
+    http_task.await?.map_err(DaemonError::Http)?;
+    tasks.close();
+    tasks.wait().await;
+    drop(ctx);
+
+    let t = metrics.totals();
+    let li = metrics::reason_index("late");
+    let di = metrics::reason_index("duplicate");
+    let all_rejected: u64 = t.rejected.iter().sum();
+    let summary = RunSummary {
+        received: t.received,
+        accepted: t.accepted,
+        rejected: all_rejected - t.rejected[li] - t.rejected[di],
+        late: t.rejected[li],
+        duplicates: t.rejected[di],
+        dropped: metrics.dropped_reorder_full.load(Relaxed),
+        processed: t.processed,
+        track_records: engine_summary.track_records,
+    };
+    tracing::info!(
+        received = summary.received,
+        accepted = summary.accepted,
+        rejected = summary.rejected,
+        late = summary.late,
+        duplicate = summary.duplicates,
+        dropped = summary.dropped,
+        ingest_queue_dropped = metrics.dropped_ingest_queue.load(Relaxed),
+        processed = summary.processed,
+        track_records = summary.track_records,
+        "skerry stopped"
+    );
+    Ok(summary)
+}
+
+/// Accepted records per second per sensor, once per health period.
+async fn rates_task(metrics: Arc<Metrics>, period: Duration, stop: CancellationToken) {
+    let n = metrics.sensors.len();
+    let mut prev: Vec<u64> = (0..n).map(|i| metrics.snapshot(Some(i as u16)).accepted).collect();
+    let mut last = tokio::time::Instant::now();
+    let mut tick = tokio::time::interval(period);
+    tick.tick().await;
+    loop {
+        tokio::select! {
+            _ = stop.cancelled() => break,
+            _ = tick.tick() => {
+                let now = tokio::time::Instant::now();
+                let dt = now.duration_since(last).as_secs_f64().max(1e-6);
+                last = now;
+                let cur: Vec<u64> = (0..n).map(|i| metrics.snapshot(Some(i as u16)).accepted).collect();
+                if let Ok(mut r) = metrics.rates.lock() {
+                    *r = cur.iter().zip(&prev).map(|(c, p)| c.saturating_sub(*p) as f64 / dt).collect();
+                }
+                prev = cur;
+            }
+        }
+    }
+}
