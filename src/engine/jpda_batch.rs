@@ -41,6 +41,7 @@
 //!   starts a tentative track (as with GNN: a plot in a firm track's gate
 //!   is more likely a split plot or multipath echo — common practice).
 
+use super::imm::ImmState;
 use super::jpda::Method;
 use super::jpda_cluster::{ClusterSolver, Edge, Variant};
 use super::pda::{PdaParams, PdaPlot, imm_pda_update};
@@ -69,6 +70,85 @@ pub struct JpdaCounters {
     pub largest_cluster_tracks: u64,
 }
 
+/// A cheap, conservative bound on where a track's gate can reach, from
+/// its current IMM state (see [`Reach::of`]).
+#[derive(Clone, Copy, Default)]
+struct Reach {
+    /// Position of the first model's component.
+    centre: Vector2<f64>,
+    /// Spread of the component positions about `centre` plus the drift
+    /// over the prediction (m).
+    drift: f64,
+    /// Largest component speed (m/s), for the drift over a plot's lead.
+    vmax: f64,
+    /// Upper bound on the trace of the combined predicted position
+    /// covariance (m²).
+    pos_trace: f64,
+}
+
+impl Reach {
+    /// Bounds for the IMM prediction of `s` over `dt` (models `models`,
+    /// the first `n` used), by the triangle inequality throughout:
+    /// - mixing takes convex combinations, so every mixed mean lies in the
+    ///   hull of the components, within `dp` (positions), `dv`
+    ///   (velocities), `dw` (turn rates) of the first component, and a
+    ///   mixed covariance's trace is at most the largest component trace
+    ///   plus that spread squared;
+    /// - a model's predicted position is `p + M v` with `M` the identity
+    ///   times dt (CV) or a scaled rotation of scale 2|sin(ωT/2)/ω| ≤ dt
+    ///   (CT), so every predicted mean, and their mixture, lies within
+    ///   `dp + dt·vmax` of the first component's position;
+    /// - the predicted position covariance is that of `p + M v + g ω`
+    ///   (`g` the CT Jacobian's turn column, |g| ≤ |v|·T², as
+    ///   |∂s/∂ω|, |∂c/∂ω| ≤ T²/2), whose root trace is at most the sum of
+    ///   the parts' root traces, plus the process noise 2qT³/3;
+    /// - the combined covariance adds the spread of the predicted means,
+    ///   at most the disc's diameter squared.
+    fn of(s: &ImmState, models: &[Motion], dt: f64) -> Reach {
+        let n = models.len();
+        let c0 = &s.comps[0];
+        let centre = Vector2::new(c0.x[0], c0.x[1]);
+        let (mut dp, mut dv, mut dw, mut vmax) = (0.0f64, 0.0f64, 0.0f64, 0.0f64);
+        let (mut tp, mut tv, mut tw) = (0.0f64, 0.0f64, 0.0f64);
+        for c in &s.comps[..n] {
+            let (x, p) = (&c.x, &c.p);
+            dp = dp.max((x[0] - c0.x[0]).hypot(x[1] - c0.x[1]));
+            dv = dv.max((x[2] - c0.x[2]).hypot(x[3] - c0.x[3]));
+            dw = dw.max((x[4] - c0.x[4]).abs());
+            vmax = vmax.max(x[2].hypot(x[3]));
+            tp = tp.max(p[(0, 0)] + p[(1, 1)]);
+            tv = tv.max(p[(2, 2)] + p[(3, 3)]);
+            tw = tw.max(p[(4, 4)]);
+        }
+        // Mixed means lie within the hull: speeds up to vmax, and the
+        // spread about any mixed mean up to the hull's diameter (2·d).
+        let sp = (tp + 4.0 * dp * dp).sqrt();
+        let sv = (tv + 4.0 * dv * dv).sqrt();
+        let sw = (tw + 4.0 * dw * dw).sqrt();
+        let q = models
+            .iter()
+            .map(|m| match *m {
+                Motion::ConstantVelocity { accel_psd } => accel_psd,
+                Motion::CoordinatedTurn { accel_psd, .. } => accel_psd,
+            })
+            .fold(0.0f64, f64::max);
+        let root = sp + dt * sv + vmax * dt * dt * sw;
+        let drift = dp + dt * vmax;
+        let pos_trace = root * root + 2.0 * q * dt * dt * dt / 3.0 + 4.0 * drift * drift;
+        Reach { centre, drift, vmax, pos_trace }
+    }
+
+    /// False only if a plot at `z` with covariance `r`, `lead` seconds
+    /// after the prediction time, is certainly outside the gate `gate_d2`:
+    /// d² ≤ g implies |ν|² ≤ g·λ_max(S) ≤ g·tr(S).
+    #[inline]
+    fn may_gate(&self, z: &Vector2<f64>, r: &Matrix2<f64>, lead: f64, gate_d2: f64) -> bool {
+        let reach = (gate_d2 * (self.pos_trace + r[(0, 0)] + r[(1, 1)])).sqrt() + self.drift + lead.abs() * self.vmax;
+        // A small relative margin covers rounding in the bound itself.
+        (z - self.centre).norm() <= reach * (1.0 + 1e-9) + 1e-6
+    }
+}
+
 #[derive(Clone, Copy)]
 struct Pair {
     row: u32,
@@ -82,9 +162,16 @@ struct Pair {
 pub(super) struct Jpda {
     pub(super) max_events: u64,
     pub(super) prune: bool,
+    /// Skip the IMM prediction of tracks no plot can gate with (on by
+    /// default; off only to check that it changes nothing).
+    pub(super) pregate: bool,
     cand: Vec<u32>,
     col_track: Vec<u32>,
     gate_pred: Vec<Gaussian>,
+    /// Whether `gate_pred[col]` has been computed (it is computed only for
+    /// a track some plot may gate with).
+    predicted: Vec<bool>,
+    reach: Vec<Reach>,
     pairs: Vec<Pair>,
     near_firm: Vec<bool>,
     parent: Vec<u32>,
@@ -103,7 +190,7 @@ pub(super) struct Jpda {
 
 impl Jpda {
     pub(super) fn new(max_events: u64) -> Self {
-        Jpda { max_events, prune: true, ..Default::default() }
+        Jpda { max_events, prune: true, pregate: true, ..Default::default() }
     }
 }
 
@@ -122,6 +209,13 @@ impl Engine {
     /// comparison in tests/jpda_close_pass.rs.
     pub fn set_jpda_pruning(&mut self, on: bool) {
         self.jpda.prune = on;
+    }
+
+    /// Turns the conservative pre-gate off (`false`) or on (the default):
+    /// for the check that it never changes the output.
+    #[doc(hidden)]
+    pub fn set_jpda_pregate(&mut self, on: bool) {
+        self.jpda.pregate = on;
     }
 
     /// How the JPDA clusters have been solved so far.
@@ -151,6 +245,8 @@ impl Engine {
         let n_rows = batch.plots.len();
         sc.col_track.clear();
         sc.gate_pred.clear();
+        sc.predicted.clear();
+        sc.reach.clear();
         sc.pairs.clear();
         sc.near_firm.clear();
         sc.near_firm.resize(n_rows, false);
@@ -174,20 +270,33 @@ impl Engine {
                     continue;
                 }
                 if t.visit != serial {
+                    // First plot of this batch to look at this track: a
+                    // column, and the cheap bound on its gate's reach.
                     t.visit = serial;
                     t.col = sc.col_track.len() as u32;
                     let dt = batch.first.secs_since(t.time).max(0.0);
-                    let pred = if dt > 0.0 { self.imm.predict(&t.state, dt) } else { t.state };
                     sc.col_track.push(idx);
-                    sc.gate_pred.push(self.imm.combine(&pred));
+                    sc.gate_pred.push(Gaussian { x: StateVec::zeros(), p: StateCov::zeros() });
+                    sc.predicted.push(false);
+                    sc.reach.push(Reach::of(&t.state, self.imm.models(), dt));
                 }
                 let t = &self.tracks[idx as usize];
                 if t.last_hit(sensor).is_some_and(|h| plot.det.time.secs_since(h) < min_gap) {
                     continue;
                 }
                 let col = t.col;
-                let g = &sc.gate_pred[col as usize];
                 let lead = plot.det.time.secs_since(batch.first);
+                if sc.pregate && !sc.reach[col as usize].may_gate(&plot.z, &plot.r, lead, self.gate_d2) {
+                    continue;
+                }
+                if !sc.predicted[col as usize] {
+                    // The gating prediction at the batch start.
+                    let dt = batch.first.secs_since(t.time).max(0.0);
+                    let pred = if dt > 0.0 { self.imm.predict(&t.state, dt) } else { t.state };
+                    sc.gate_pred[col as usize] = self.imm.combine(&pred);
+                    sc.predicted[col as usize] = true;
+                }
+                let g = &sc.gate_pred[col as usize];
                 let mut moved = *g;
                 moved.x[0] += g.x[2] * lead;
                 moved.x[1] += g.x[3] * lead;
@@ -365,5 +474,73 @@ impl Engine {
         let mut plots = batch.plots;
         plots.clear();
         self.batch.plots = plots;
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::engine::imm::Switching;
+    use nalgebra::SMatrix;
+    use rand::{Rng, SeedableRng};
+
+    /// The reach bound against its definition: for random IMM states
+    /// (spread components, turning, long silences) and plots, whenever
+    /// the exact gate test of the combined prediction passes, the bound
+    /// must let the pair through.
+    #[test]
+    fn reach_never_drops_a_gated_pair() {
+        let imm = Imm::new(
+            &[
+                Motion::ConstantVelocity { accel_psd: 1e-4 },
+                Motion::CoordinatedTurn { accel_psd: 0.01, turn_psd: 1e-4 },
+                Motion::ConstantVelocity { accel_psd: 0.3 },
+            ],
+            Switching::Sojourn([1800.0, 10.0, 10.0]),
+        )
+        .expect("imm");
+        let gate_d2 = -2.0 * (1.0f64 - 0.999).ln();
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(31);
+        let (mut gated, mut checked) = (0, 0);
+        for _ in 0..3000 {
+            let mut s = imm.init(Gaussian { x: StateVec::zeros(), p: StateCov::identity() }, None);
+            let base = StateVec::new(rng.random_range(-500.0..500.0), rng.random_range(-500.0..500.0), rng.random_range(-10.0..10.0), rng.random_range(-10.0..10.0), 0.0);
+            for c in s.comps.iter_mut() {
+                let mut x = base;
+                x[0] += rng.random_range(-30.0..30.0);
+                x[1] += rng.random_range(-30.0..30.0);
+                x[2] += rng.random_range(-2.0..2.0);
+                x[3] += rng.random_range(-2.0..2.0);
+                x[4] = rng.random_range(-0.1..0.1);
+                let a = SMatrix::<f64, 5, 5>::from_fn(|_, _| rng.random_range(-1.0..1.0));
+                let scale = StateCov::from_diagonal(&StateVec::new(20.0, 20.0, 2.0, 2.0, 0.02));
+                c.x = x;
+                c.p = scale * (a * a.transpose() + StateCov::identity() * 0.1) * scale;
+            }
+            let mu: [f64; 3] = [rng.random_range(0.01..1.0), rng.random_range(0.01..1.0), rng.random_range(0.01..1.0)];
+            let total: f64 = mu.iter().sum();
+            s.mu = mu.map(|m| m / total);
+            let dt = if rng.random_bool(0.2) { rng.random_range(0.0..40.0) } else { rng.random_range(0.0..3.0) };
+            let reach = Reach::of(&s, imm.models(), dt);
+            let g = imm.combine(&imm.predict(&s, dt));
+            for _ in 0..20 {
+                let lead = rng.random_range(0.0..0.2);
+                let sigma = rng.random_range(5.0..40.0);
+                let r = Matrix2::new(sigma * sigma, 0.0, 0.0, 0.5 * sigma * sigma);
+                // Plots spread around the prediction out to a few gate radii.
+                let spread = 4.0 * (g.p[(0, 0)] + g.p[(1, 1)] + r[(0, 0)] + r[(1, 1)]).sqrt();
+                let z = Vector2::new(g.x[0] + g.x[2] * lead + rng.random_range(-spread..spread), g.x[1] + g.x[3] * lead + rng.random_range(-spread..spread));
+                let mut moved = g;
+                moved.x[0] += g.x[2] * lead;
+                moved.x[1] += g.x[3] * lead;
+                let Some(inn) = innovation(&moved, &z, &r) else { continue };
+                checked += 1;
+                if inn.d2 <= gate_d2 {
+                    gated += 1;
+                    assert!(reach.may_gate(&z, &r, lead, gate_d2), "dropped a gated pair: d2 {}", inn.d2);
+                }
+            }
+        }
+        assert!(gated > 1000 && checked > gated, "{gated} of {checked}");
     }
 }

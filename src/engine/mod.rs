@@ -26,6 +26,11 @@
 //! it fell inside the gate of a firm track (a split plot or a multipath
 //! echo of a vessel already held: common practice).
 //!
+//! With `tracking.association = "jpda"` a batch is associated by joint
+//! probabilistic data association instead (jpda_batch.rs: clusters,
+//! JPDA* marginals, IMM-PDA updates); transponder reports are handled the
+//! same way in both modes (identity.rs).
+//!
 //! Track timeouts are checked on a one-second grid of feed time, so the
 //! result does not depend on when the daemon's clock ticks.
 
