@@ -173,6 +173,9 @@ pub(super) struct Jpda {
     predicted: Vec<bool>,
     reach: Vec<Reach>,
     pairs: Vec<Pair>,
+    sorted: Vec<Pair>,
+    col_start: Vec<u32>,
+    col_order: Vec<u32>,
     near_firm: Vec<bool>,
     parent: Vec<u32>,
     row_local: Vec<u32>,
@@ -263,7 +266,10 @@ impl Engine {
                 }
             }
             sc.cand.extend(self.wide.iter().copied());
-            sc.cand.sort_unstable();
+            // No sort: the cells are read in a fixed order and the grid's
+            // contents follow from the input alone, so the column order is
+            // deterministic; a track is in one cell or in `wide`, never
+            // twice.
             for &idx in &sc.cand {
                 let t = &mut self.tracks[idx as usize];
                 if t.status == TrackStatus::Ended {
@@ -325,7 +331,32 @@ impl Engine {
         for k in 0..sc.pairs.len() {
             sc.pairs[k].cluster = find(&mut sc.parent, sc.pairs[k].col);
         }
-        sc.pairs.sort_unstable_by_key(|p| (p.cluster, p.col, p.row));
+        // Group by (cluster, column, row) in linear time: the pairs were
+        // made row by row, so a stable counting sort by column keeps rows
+        // ascending; the columns are then ordered by cluster.
+        sc.col_start.clear();
+        sc.col_start.resize(n_cols, 0);
+        for p in &sc.pairs {
+            sc.col_start[p.col as usize] += 1;
+        }
+        sc.col_order.clear();
+        sc.col_order.extend((0..n_cols as u32).filter(|&c| sc.col_start[c as usize] > 0));
+        sc.col_order.sort_unstable_by_key(|&c| (find(&mut sc.parent, c), c));
+        // Counts become each column's first slot, in cluster order.
+        let mut at = 0u32;
+        for &c in &sc.col_order {
+            let n = sc.col_start[c as usize];
+            sc.col_start[c as usize] = at;
+            at += n;
+        }
+        sc.sorted.clear();
+        sc.sorted.resize(sc.pairs.len(), Pair { row: 0, col: 0, cluster: 0, ln_w: 0.0 });
+        for p in &sc.pairs {
+            let slot = &mut sc.col_start[p.col as usize];
+            sc.sorted[*slot as usize] = *p;
+            *slot += 1;
+        }
+        std::mem::swap(&mut sc.pairs, &mut sc.sorted);
 
         // Marginals per cluster.
         sc.pair_beta.clear();

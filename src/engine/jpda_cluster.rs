@@ -63,9 +63,9 @@ const BP_MAX_ITER: usize = 200;
 /// Converged when no message changes by more than this.
 const BP_TOL: f64 = 1e-9;
 /// Edge updates allowed for one cluster's belief propagation: bounds the
-/// time of a pathological cluster (about 10 ms at the measured rate; see
-/// BENCHMARKS-jpda.md). At least `BP_MIN_ITER` sweeps are always made.
-const BP_MAX_WORK: usize = 4_000_000;
+/// time of a pathological cluster (a few ms; see BENCHMARKS-jpda.md). At
+/// least `BP_MIN_ITER` sweeps are always made.
+const BP_MAX_WORK: usize = 1_000_000;
 const BP_MIN_ITER: usize = 10;
 
 const NONE: u32 = u32::MAX;

@@ -59,13 +59,13 @@ impl Pass {
         }
     }
 
-    /// Two vessels in company 40–60 m abreast, the second turning away by
+    /// Two vessels in company 25–45 m abreast, the second turning away by
     /// 10–30° at the crossing time: the set-up in which JPDA tracks are
     /// known to coalesce (Blom & Bloem 2000).
     pub fn company_for_seed(seed: u64) -> Pass {
         let mut p = Pass::for_seed(seed);
         p.company = true;
-        p.offset_m = env_or("JPDA_ABREAST", 40.0) + (7.3 * seed as f64) % 20.0;
+        p.offset_m = env_or("JPDA_ABREAST", 25.0) + (7.3 * seed as f64) % 20.0;
         p.speeds_kn = (10.0, 10.0);
         p
     }
