@@ -374,7 +374,7 @@ pub struct AsterixDecoder {
     follow: Option<Timestamp>,
 }
 
-type Sink<'s> = dyn FnMut(Result<AsterixItem, AsterixReject>) + 's;
+pub(crate) type Sink<'s> = dyn FnMut(Result<AsterixItem, AsterixReject>) + 's;
 
 /// A record-level outcome: the item, or why this one record is dropped.
 pub(crate) type RecordOutcome = Result<AsterixItem, AsterixRejectReason>;
@@ -451,34 +451,37 @@ impl AsterixDecoder {
         while pos < body.len() {
             let rec = &body[pos..];
             let step = match cat {
-                48 => cat048::record(self, rec, reference),
-                34 => cat034::record(self, rec, reference),
-                _ => cat010::record(self, rec, reference),
+                48 => cat048::record(self, rec, reference, sink),
+                34 => cat034::record(self, rec, reference, sink),
+                _ => cat010::record(self, rec, reference, sink),
             };
             match step {
-                Ok((len, sensor, outcome)) => {
-                    pos += len;
-                    match outcome {
-                        Ok(item) => {
-                            match &item {
-                                AsterixItem::Plot(_) => self.counts.plots += 1,
-                                AsterixItem::Service(s) => {
-                                    self.counts.services += 1;
-                                    if s.scan_end.is_some() {
-                                        self.counts.scan_ends += 1;
-                                    }
-                                }
-                            }
-                            sink(Ok(item));
-                        }
-                        Err(reason) => self.reject(sink, reason, cat, sensor),
-                    }
-                }
+                Ok(len) => pos += len,
                 Err((reason, sensor)) => {
                     self.reject(sink, reason, cat, sensor);
                     return;
                 }
             }
+        }
+    }
+
+    /// Hands a record's outcome to the sink, counting it.
+    #[inline(always)]
+    pub(crate) fn emit(&mut self, sink: &mut Sink<'_>, category: u8, sensor: Option<SensorId>, outcome: RecordOutcome) {
+        match outcome {
+            Ok(item) => {
+                match &item {
+                    AsterixItem::Plot(_) => self.counts.plots += 1,
+                    AsterixItem::Service(s) => {
+                        self.counts.services += 1;
+                        if s.scan_end.is_some() {
+                            self.counts.scan_ends += 1;
+                        }
+                    }
+                }
+                sink(Ok(item));
+            }
+            Err(reason) => self.reject(sink, reason, category, sensor),
         }
     }
 
@@ -577,9 +580,10 @@ pub fn nearest_day(tod: u32, reference: Timestamp) -> Timestamp {
     Timestamp::from_unix_nanos(t)
 }
 
-/// A record walked by its UAP: the octets it spans, or the framing fault
-/// with the sensor if the source was already read.
-pub(crate) type Walked = Result<(usize, Option<SensorId>, RecordOutcome), (AsterixRejectReason, Option<SensorId>)>;
+/// A record walked by its UAP (its outcome already handed to the sink):
+/// the octets it spans, or the framing fault with the sensor if the
+/// source was already read.
+pub(crate) type Walked = Result<usize, (AsterixRejectReason, Option<SensorId>)>;
 
 /// Walks one record: FSPEC, then each present item in UAP order, handing
 /// `(frn_index, item_octets)` to `f`. Returns the record's length.
