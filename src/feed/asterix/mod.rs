@@ -31,6 +31,26 @@
 //! Scan counting is per sensor and kept here: a category 034 north marker
 //! or a category 010 start of update cycle ends scan *n* (its `scan_end`
 //! carries *n*) and later plots carry *n* + 1.
+//!
+//! Sectors: a sector crossing at edge *b* closes `[a, b]`, *a* being the
+//! previous edge (a north marker is the edge 0°). A radar that sends no
+//! sector crossings gets a full-circle `scan_end` at each north marker.
+//! The first crossing after start-up (no previous edge) and a repeated
+//! edge close nothing: their [`Service`] has `scan_end: None`.
+//!
+//! # Wiring (for the daemon and the offline commands)
+//!
+//! - Build the table once: `SourceTable::from_config(&cfg)?` (radar
+//!   sensors with both `asterix_sac` and `asterix_sic`; sensor ids are
+//!   configuration indices, as in `Config::sensor_table`). Its errors
+//!   (duplicate pair, only one of the two keys, a transponder with a
+//!   source) belong in configuration validation.
+//! - Live: `decoder.decode(datagram, receive_time, &mut sink)`; offline
+//!   (`--asterix FILE --date D`): `decoder.decode_recording(bytes, D, &mut sink)`.
+//! - In the sink: `item.record()` is the feed record to screen and track;
+//!   `Plot::{amplitude, doppler, run_length_deg}` and
+//!   `Service::rotation_period_s` are extras for health and metrics;
+//!   rejects count under `AsterixReject::reason.key()`.
 
 mod cat010;
 mod cat034;
