@@ -150,7 +150,7 @@ struct Held {
 
 impl PartialEq for Held {
     fn eq(&self, o: &Self) -> bool {
-        (self.time, self.seq) == (o.time, o.seq)
+        self.cmp(o) == Ordering::Equal
     }
 }
 impl Eq for Held {}
@@ -161,8 +161,10 @@ impl PartialOrd for Held {
 }
 impl Ord for Held {
     // Reversed: BinaryHeap is a max-heap and the earliest must come first.
+    // Equal times follow the offline order (crate::offline::feed_order), so
+    // live and offline runs process a scan's records identically.
     fn cmp(&self, o: &Self) -> Ordering {
-        (o.time, o.seq).cmp(&(self.time, self.seq))
+        crate::offline::feed_order(&o.rec, &self.rec).then(o.seq.cmp(&self.seq))
     }
 }
 

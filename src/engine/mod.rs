@@ -107,13 +107,14 @@ struct SensorState {
 #[derive(Default)]
 struct Scratch {
     cand: Vec<u32>,
-    gate_pred: Vec<Gaussian>,
+    gate_pred: Vec<imm::ImmState>,
     col_track: Vec<u32>,
     pairs: Vec<(u32, u32, f64)>,
     row_alone: Vec<f64>,
     col_alone: Vec<f64>,
     row_to_col: Vec<Option<u32>>,
     near_firm: Vec<bool>,
+    col_taken: Vec<bool>,
 }
 
 pub struct Engine {
@@ -148,6 +149,33 @@ pub struct Engine {
     stats: EngineStats,
     assigner: SparseAssigner,
     scratch: Scratch,
+}
+
+/// Gates a plot against an IMM prediction made `lead` seconds before the
+/// plot: the plot is inside if it is inside any model's gate (the widest
+/// model decides at the onset of a manoeuvre, while the quiet model still
+/// holds most of the probability: common IMM practice). Returns the
+/// mixture log-likelihood ln Σ μ_j N_j(z).
+pub(crate) fn imm_gate(n_models: usize, pred: &imm::ImmState, lead: f64, z: &Vector2<f64>, r: &Matrix2<f64>, gate_d2: f64) -> Option<f64> {
+    let mut inside = false;
+    let mut terms = [f64::NEG_INFINITY; imm::MAX_MODELS];
+    for j in 0..n_models {
+        let mu = pred.mu[j];
+        if !(mu > 0.0) {
+            continue;
+        }
+        let mut g = pred.comps[j];
+        g.x[0] += g.x[2] * lead;
+        g.x[1] += g.x[3] * lead;
+        let Some(inn) = innovation(&g, z, r) else { continue };
+        inside |= inn.d2 <= gate_d2;
+        terms[j] = mu.ln() + inn.log_likelihood();
+    }
+    if !inside {
+        return None;
+    }
+    let m = terms.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    Some(m + terms.iter().map(|t| (t - m).exp()).sum::<f64>().ln())
 }
 
 fn cell_of(p: &Vector2<f64>) -> (i32, i32) {
@@ -451,29 +479,22 @@ impl Engine {
                     let dt = batch.first.secs_since(t.time).max(0.0);
                     let pred = if dt > 0.0 { self.imm.predict(&t.state, dt) } else { t.state };
                     sc.col_track.push(idx);
-                    sc.gate_pred.push(self.imm.combine(&pred));
+                    sc.gate_pred.push(pred);
                 }
                 let t = &self.tracks[idx as usize];
                 if t.last_hit(sensor).is_some_and(|h| plot.det.time.secs_since(h) < min_gap) {
                     continue;
                 }
                 let col = t.col as usize;
-                let g = &sc.gate_pred[col];
                 let lead = plot.det.time.secs_since(batch.first);
-                let mut moved = *g;
-                moved.x[0] += g.x[2] * lead;
-                moved.x[1] += g.x[3] * lead;
-                let Some(inn) = innovation(&moved, &plot.z, &plot.r) else { continue };
-                if inn.d2 > self.gate_d2 {
-                    continue;
-                }
+                let Some(ll) = imm_gate(self.imm.n_models(), &sc.gate_pred[col], lead, &plot.z, &plot.r, self.gate_d2) else { continue };
                 if t.status.is_firm() {
                     sc.near_firm[row] = true;
                 }
                 // Cost: minus the log-likelihood ratio of "this plot is
                 // this track's" against "the track missed and the plot is
                 // clutter or a new vessel".
-                let cost = -(pd.ln() + inn.log_likelihood() - miss_ln - beta.ln());
+                let cost = -(pd.ln() + ll - miss_ln - beta.ln());
                 sc.pairs.push((row as u32, col as u32, cost));
             }
         }
@@ -482,6 +503,11 @@ impl Engine {
         sc.col_alone.clear();
         sc.col_alone.resize(sc.col_track.len(), 0.0);
         self.assigner.solve(&sc.row_alone, &sc.col_alone, &sc.pairs, &mut sc.row_to_col);
+        sc.col_taken.clear();
+        sc.col_taken.resize(sc.col_track.len(), false);
+        for c in sc.row_to_col.iter().flatten() {
+            sc.col_taken[*c as usize] = true;
+        }
         for (row, plot) in batch.plots.iter().enumerate() {
             let assigned = sc.row_to_col.get(row).copied().flatten();
             let done = match assigned {
@@ -496,6 +522,35 @@ impl Engine {
                 None => false,
             };
             if !done && !sc.near_firm[row] {
+                // Second chance before a new track: a firm track left
+                // without a plot in this batch takes a plot inside its
+                // manoeuvre gate (three times the gate distance), so a
+                // vessel that turns harder than its filter foresaw keeps
+                // its number (common practice).
+                let lead = plot.det.time.secs_since(batch.first);
+                let mut best: Option<(f64, usize)> = None;
+                for (col, &idx) in sc.col_track.iter().enumerate() {
+                    let t = &self.tracks[idx as usize];
+                    if !t.status.is_firm() || sc.col_taken.get(col).copied().unwrap_or(false) {
+                        continue;
+                    }
+                    if t.last_hit(sensor).is_some_and(|h| plot.det.time.secs_since(h) < min_gap) {
+                        continue;
+                    }
+                    if let Some(ll) = imm_gate(self.imm.n_models(), &sc.gate_pred[col], lead, &plot.z, &plot.r, 9.0 * self.gate_d2) {
+                        if best.is_none_or(|(b, _)| ll > b) {
+                            best = Some((ll, col));
+                        }
+                    }
+                }
+                if let Some((_, col)) = best {
+                    sc.col_taken[col] = true;
+                    let idx = sc.col_track[col];
+                    if self.update_track(idx, &plot.z, &plot.r, plot.det.time, sensor, out) {
+                        self.stats.plots_associated += 1;
+                        continue;
+                    }
+                }
                 let idx = self.new_track(&plot.z, &plot.r, plot.det.time, sensor);
                 let t = &self.tracks[idx as usize];
                 let g = self.imm.combine(&t.state);
