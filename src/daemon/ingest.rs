@@ -28,7 +28,7 @@
 use super::clock::DaemonClock;
 use super::metrics::{self, Metrics};
 use super::proto::{self, v1};
-use crate::feed::{self, Record, Reject, RejectReason, Screen, SensorId, SensorTable};
+use crate::feed::{self, Record, Reject, RejectReason, SensorId, SensorTable};
 use crate::time::Timestamp;
 use prost::Message;
 use std::collections::HashMap;
@@ -204,12 +204,11 @@ impl IngestContext {
                 return self.rejected_key(Some(s), metrics::reason_index("not_allowed"), &text, Some(src), now, tally);
             }
         }
-        // Plausibility against the daemon's clock, before ordering: a wild
-        // time must not reach the reorder buffer's sensor clocks.
-        let mut screen = Screen::new(Some(now), self.max_time_offset_s);
-        screen.set_reference(now);
-        if let Err(e) = screen.plausible(&rec) {
-            return self.rejected(&e, src, now, tally);
+        // Plausibility against the daemon's clock (as feed::Screen judges
+        // it), before ordering: a wild time must not reach the reorder
+        // buffer's sensor clocks.
+        if rec.time().secs_since(now).abs() > self.max_time_offset_s {
+            return self.rejected(&Reject { reason: RejectReason::ImplausibleTime, sensor: Some(s) }, src, now, tally);
         }
         match self.tx.try_send(Arrival { rec, at: now }) {
             Ok(()) => {
