@@ -40,7 +40,9 @@
 //!    order, and `scan_end_closes` is set: the scan is complete). A sensor
 //!    quiet for longer bounds nothing: whatever it sent was due a window
 //!    ago. So `R` = the least bound, or `F` when the whole feed has been
-//!    quiet for a window; with every sensor silent, everything held is due.
+//!    quiet for a window. With every sensor silent, all that the sensors
+//!    last seen agreeing sent is due (a sensor ahead keeps its records held,
+//!    so an outage does not carry the release time to its clock).
 //!
 //! A record is thus late only when it arrived more than `window_s` after
 //! records of its time from the slowest agreeing sensor, or after the
@@ -140,6 +142,8 @@ struct Sensor {
     /// A record of this sensor came older than its own `hi`.
     disordered: bool,
     state: Option<ClockState>,
+    /// Agreed with the others when last not silent.
+    agreed: bool,
 }
 
 struct Held {
@@ -330,8 +334,11 @@ impl Reorder {
             self.scratch.push((hi, s.offset_s.unwrap_or(0.0).abs(), i));
         }
         if self.scratch.is_empty() {
-            // Every sensor silent: all that is held is due.
-            return self.heap.iter().map(|h| h.time).max();
+            // Every sensor silent: all that the agreeing sensors sent is
+            // due. A sensor that was ahead keeps its records held, so that
+            // an outage does not carry the release time to its clock.
+            let agreed = self.sensors.iter().filter(|s| s.agreed).filter_map(|s| s.hi).max();
+            return agreed.or_else(|| self.heap.iter().map(|h| h.time).max());
         }
         // 2. The largest group within max_skew_s (ties: nearest the
         // daemon's clock). Sorted by clock, a group is a run [a, b].
@@ -354,13 +361,15 @@ impl Reorder {
             }
         }
         for (k, &(_, _, i)) in self.scratch.iter().enumerate() {
-            self.sensors[i].state = Some(if k < best_a {
+            let state = if k < best_a {
                 ClockState::Behind
             } else if k > best_b {
                 ClockState::Ahead
             } else {
                 ClockState::Agrees
-            });
+            };
+            self.sensors[i].state = Some(state);
+            self.sensors[i].agreed = state == ClockState::Agrees;
         }
         // 3. The feed time.
         let feed = self.scratch[best_b].0;
@@ -640,6 +649,31 @@ mod tests {
         assert_eq!(states, vec![ClockState::Agrees, ClockState::Agrees, ClockState::Ahead]);
         let off = r.clocks().nth(2).unwrap().offset_s.unwrap();
         assert!((off + 3600.0).abs() < 1.0, "{off}");
+    }
+
+    #[test]
+    fn an_outage_does_not_carry_the_release_time_to_a_sensor_ahead() {
+        let mut r = Reorder::new(cfg());
+        let mut out = Vec::new();
+        for i in 0..30 {
+            let t = i as f64 * 0.1;
+            for (s, skew) in [(0, 0.0), (1, 0.0), (2, 3600.0)] {
+                r.push(det(s, t + skew, 0.0), ts(t));
+            }
+            r.pop_due(ts(t), &mut out);
+        }
+        // Everyone silent for longer than idle_s: the agreeing sensors'
+        // records are all released, the one ahead keeps its own held.
+        out.clear();
+        r.pop_due(ts(20.0), &mut out);
+        assert_eq!(r.released(), Some(ts(2.9)));
+        assert!(out.iter().all(|x| x.sensor() != 2));
+        assert_eq!(r.len(), 30);
+        // They come back: nothing they send is late.
+        for i in 0..10 {
+            let t = 3.0 + i as f64 * 0.1;
+            assert_eq!(r.push(det(0, t, 0.0), ts(20.0 + t)), Admit::Held);
+        }
     }
 
     #[test]
