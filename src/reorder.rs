@@ -35,12 +35,16 @@
 //! 3. The feed time `F` is the newest `hi` among the agreeing sensors.
 //! 4. An agreeing sensor that sent something within the last `window_s` of
 //!    daemon time may still have records up to `window_s` older than its
-//!    newest on the way: it bounds `R` by `hi - window_s` (or by `hi` when
-//!    its latest record was a `scan_end`, its stream has so far come in
-//!    order, and `scan_end_closes` is set: the scan is complete). A sensor
-//!    quiet for longer bounds nothing: whatever it sent was due a window
-//!    ago. So `R` = the least bound, or `F` when the whole feed has been
-//!    quiet for a window. With every sensor silent, all that the sensors
+//!    newest on the way: it bounds `R` by `hi - window_s + q`, where `q` is
+//!    how long it has now been quiet (or by `hi` when its latest record was
+//!    a `scan_end`, its stream has so far come in order, and
+//!    `scan_end_closes` is set: the scan is complete). A record delayed by
+//!    `d` arrives at least `q` after the sensor's newest, which is at most
+//!    `d` newer than it, so it is still ahead of that bound while
+//!    `d < window_s`; and while a sensor pauses, what it sent leaves at the
+//!    pace it came instead of in one burst. A sensor quiet for a whole
+//!    window bounds nothing: whatever it sent is due. So `R` = the least
+//!    bound, or `F` when the whole feed has been quiet for a window. With every sensor silent, all that the sensors
 //!    last seen agreeing sent is due (a sensor ahead keeps its records held,
 //!    so an outage does not carry the release time to its clock).
 //!
@@ -377,11 +381,14 @@ impl Reorder {
         let mut due = feed;
         for &(hi, _, i) in &self.scratch[best_a..=best_b] {
             let s = &self.sensors[i];
-            let quiet = s.last_arrival.is_none_or(|a| now.secs_since(a) >= cfg.window_s);
-            if quiet {
+            let quiet_s = s.last_arrival.map_or(f64::INFINITY, |a| now.secs_since(a).max(0.0));
+            if quiet_s >= cfg.window_s {
                 continue;
             }
-            let bound = if cfg.scan_end_closes && s.closed && !s.disordered { hi } else { hi.plus_secs(-cfg.window_s) };
+            // While the sensor pauses, its bound follows the clock: what it
+            // sent leaves at the pace it came, a window later, rather than
+            // in one burst when the pause reaches the window.
+            let bound = if cfg.scan_end_closes && s.closed && !s.disordered { hi } else { hi.plus_secs(quiet_s - cfg.window_s) };
             if bound < due {
                 due = bound;
             }
@@ -576,9 +583,12 @@ mod tests {
         r.push(det(0, 0.3, 0.0), ts(100.3));
         assert_eq!(r.pop_due(ts(100.3), &mut out), Some(ts(-0.7)));
         assert!(out.is_empty());
-        // Less than a window of quiet: still held.
-        r.pop_due(ts(101.2), &mut out);
+        // While the feed is quiet, the release time follows the clock, a
+        // window behind the newest record.
+        assert_eq!(r.pop_due(ts(100.9), &mut out), Some(ts(-0.1)));
         assert!(out.is_empty());
+        r.pop_due(ts(101.2), &mut out);
+        assert_eq!(times(&out), vec![0.0]);
         // A window of quiet: everything up to the newest is due.
         assert_eq!(r.pop_due(ts(101.31), &mut out), Some(ts(0.3)));
         assert_eq!(times(&out), vec![0.0, 0.3]);
