@@ -255,11 +255,10 @@ impl Reorder {
                 }
             }
         }
-        if let Record::ScanEnd(_) = rec {
-            if s.hi == Some(t) {
+        if let Record::ScanEnd(_) = rec
+            && s.hi == Some(t) {
                 s.closed = true;
             }
-        }
         if self.released.is_some_and(|r| t < r) {
             return Admit::Late;
         }
@@ -276,12 +275,11 @@ impl Reorder {
     pub fn pop_due(&mut self, now: Timestamp, out: &mut Vec<Record>) -> Option<Timestamp> {
         let due = self.due_time(now);
         let mut moved = None;
-        if let Some(d) = due {
-            if self.released.is_none_or(|r| d > r) {
+        if let Some(d) = due
+            && self.released.is_none_or(|r| d > r) {
                 self.released = Some(d);
                 moved = Some(d);
             }
-        }
         if let Some(r) = self.released {
             while self.heap.peek().is_some_and(|h| h.time <= r) {
                 if let Some(h) = self.heap.pop() {
@@ -346,7 +344,7 @@ impl Reorder {
         }
         // 2. The largest group within max_skew_s (ties: nearest the
         // daemon's clock). Sorted by clock, a group is a run [a, b].
-        self.scratch.sort_by(|x, y| x.0.cmp(&y.0));
+        self.scratch.sort_by_key(|x| x.0);
         let n = self.scratch.len();
         let (mut best_a, mut best_b, mut best_off) = (0usize, 0usize, f64::INFINITY);
         let mut b = 0;
@@ -523,11 +521,10 @@ mod tests {
             for (_, rec) in keyed {
                 let t = rec.time().secs_since(ts(0.0));
                 if speed > 0.0 {
-                    if let Some(p) = prev {
-                        if t > p {
+                    if let Some(p) = prev
+                        && t > p {
                             wall += (t - p) / speed;
                         }
-                    }
                     prev = Some(prev.map_or(t, |p: f64| p.max(t)));
                 } else {
                     wall += 1e-5;

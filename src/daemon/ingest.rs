@@ -198,12 +198,11 @@ impl IngestContext {
             Err(e) => return self.rejected(&e, src, now, tally),
         };
         let s = rec.sensor();
-        if let (Some(list), Some(src)) = (self.allow.get(s as usize), src) {
-            if !list.is_empty() && !list.iter().any(|a| a.contains(src.ip())) {
+        if let (Some(list), Some(src)) = (self.allow.get(s as usize), src)
+            && !list.is_empty() && !list.iter().any(|a| a.contains(src.ip())) {
                 let text = format!("source {} is not on the allow-list of sensor {}", src.ip(), self.sensors.name(s));
                 return self.rejected_key(Some(s), metrics::reason_index("not_allowed"), &text, Some(src), now, tally);
             }
-        }
         // Plausibility against the daemon's clock (as feed::Screen judges
         // it), before ordering: a wild time must not reach the reorder
         // buffer's sensor clocks.
