@@ -172,21 +172,28 @@ fn busy_scene(minutes: f64) -> String {
 
 #[test]
 fn busy_scene_no_swaps_few_false_tracks_quick_confirmation() {
+    // Three 15-minute runs (45 minutes of traffic) with different noise.
     let minutes = 15.0;
-    let r = run(&busy_scene(minutes), 7);
-    let c = &r.report.continuity;
-    eprintln!(
-        "busy scene: GOSPA {:.1} m, switches {}, breaks {}, false {}, confirm mean {:?} max {:?}",
-        r.report.gospa_mean, c.id_switches, c.track_breaks, c.false_tracks, c.time_to_confirm_mean_s, c.time_to_confirm_max_s
-    );
-    assert_eq!(c.id_switches, 0, "{:?}", r.report.per_vessel.iter().filter(|v| v.id_switches > 0).collect::<Vec<_>>());
-    // Fewer than 4 per hour: in 15 minutes, fewer than 1.
-    assert!((c.false_tracks as f64) < 4.0 * minutes / 60.0, "false tracks {:?}", c.false_track_numbers);
-    assert!(c.vessels_never_assigned.is_empty());
-    // Within 4 scans of the slower radar (3 s), counted from the vessel's
-    // first truth instant, plus one truth interval.
-    for v in &r.report.per_vessel {
-        let t = v.time_to_confirm_s.expect("confirmed");
-        assert!(t <= 4.0 * 3.0 + 1.0, "{} took {t} s to confirm", v.vessel);
+    let seeds = [7u64, 8, 9];
+    let mut false_tracks = 0usize;
+    for seed in seeds {
+        let r = run(&busy_scene(minutes), seed);
+        let c = &r.report.continuity;
+        eprintln!(
+            "busy scene seed {seed}: GOSPA {:.1} m, switches {}, breaks {}, false {}, confirm mean {:?} max {:?}",
+            r.report.gospa_mean, c.id_switches, c.track_breaks, c.false_tracks, c.time_to_confirm_mean_s, c.time_to_confirm_max_s
+        );
+        assert_eq!(c.id_switches, 0, "{:?}", r.report.per_vessel.iter().filter(|v| v.id_switches > 0).collect::<Vec<_>>());
+        assert!(c.vessels_never_assigned.is_empty());
+        false_tracks += c.false_tracks;
+        // Within 4 scans of the slower radar (3 s), counted from the
+        // vessel's first truth instant, plus one truth interval.
+        for v in &r.report.per_vessel {
+            let t = v.time_to_confirm_s.expect("confirmed");
+            assert!(t <= 4.0 * 3.0 + 1.0, "{} took {t} s to confirm", v.vessel);
+        }
     }
+    let hours = minutes * seeds.len() as f64 / 60.0;
+    eprintln!("busy scene: {false_tracks} false confirmed tracks in {hours} h");
+    assert!((false_tracks as f64) < 4.0 * hours, "{false_tracks} false tracks in {hours} h");
 }

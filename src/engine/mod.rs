@@ -77,6 +77,10 @@ pub struct EngineStats {
 /// checked against every plot instead (see `Engine::sweep`).
 const CELL_M: f64 = 2000.0;
 
+/// The manoeuvre gate of a coasting track, as a multiple of the normal
+/// gate's squared distance (2× the distance).
+const SECOND_CHANCE_SCALE: f64 = 4.0;
+
 /// Batches span at most this fraction of the sensor's scan period.
 const BATCH_FRACTION: f64 = 1.0 / 16.0;
 
@@ -134,6 +138,9 @@ pub struct Engine {
     max_silence_s: f64,
     identified_silence_s: f64,
     identity_gate_m: f64,
+    max_speed_mps: f64,
+    /// Some track ended outside a scan end or sweep: compact at the next one.
+    pending_compact: bool,
     /// Live tracks, in order of creation (so of track number).
     tracks: Vec<Track>,
     /// Grid cell → indices into `tracks`.
@@ -226,6 +233,8 @@ impl Engine {
             max_silence_s: t.max_silence_s,
             identified_silence_s: t.identified_silence_s,
             identity_gate_m: t.identity_gate_m,
+            max_speed_mps: t.max_speed_kn * crate::feed::tracks::MPS_PER_KNOT,
+            pending_compact: false,
             tracks: Vec::new(),
             grid: HashMap::new(),
             wide: Vec::new(),
@@ -421,10 +430,24 @@ impl Engine {
             (_, last_end) => t.last_hit(sensor).is_none_or(|h| Some(h) <= last_end),
         };
         let rules = self.rules;
+        let max_speed = self.max_speed_mps;
         let t = &mut self.tracks[idx as usize];
         t.state = state;
         t.time = time;
         t.note_hit(sensor, time);
+        if t.status == TrackStatus::Tentative {
+            // A tentative track faster than any vessel here is clutter
+            // strung together: end it rather than confirm it.
+            let g = self.imm.combine(&t.state);
+            if g.x[2].hypot(g.x[3]) > max_speed {
+                t.status = TrackStatus::Ended;
+                self.pending_compact = true;
+                let g = self.imm.combine(&self.tracks[idx as usize].state);
+                out.push(self.record_of(&self.tracks[idx as usize], time, &g, Some(sensor)));
+                return true;
+            }
+        }
+        let t = &mut self.tracks[idx as usize];
         if first_hit_this_scan {
             t.look(true, &rules);
         }
@@ -522,22 +545,22 @@ impl Engine {
                 None => false,
             };
             if !done && !sc.near_firm[row] {
-                // Second chance before a new track: a firm track left
-                // without a plot in this batch takes a plot inside its
-                // manoeuvre gate (three times the gate distance), so a
-                // vessel that turns harder than its filter foresaw keeps
-                // its number (common practice).
+                // Second chance before a new track: a coasting track (it
+                // missed its last look) left without a plot in this batch
+                // takes a plot inside its manoeuvre gate (twice the
+                // gate distance), so a vessel that turns harder than its
+                // filter foresaw keeps its number (common practice).
                 let lead = plot.det.time.secs_since(batch.first);
                 let mut best: Option<(f64, usize)> = None;
                 for (col, &idx) in sc.col_track.iter().enumerate() {
                     let t = &self.tracks[idx as usize];
-                    if !t.status.is_firm() || sc.col_taken.get(col).copied().unwrap_or(false) {
+                    if t.status != TrackStatus::Coasting || sc.col_taken.get(col).copied().unwrap_or(false) {
                         continue;
                     }
                     if t.last_hit(sensor).is_some_and(|h| plot.det.time.secs_since(h) < min_gap) {
                         continue;
                     }
-                    if let Some(ll) = imm_gate(self.imm.n_models(), &sc.gate_pred[col], lead, &plot.z, &plot.r, 9.0 * self.gate_d2) {
+                    if let Some(ll) = imm_gate(self.imm.n_models(), &sc.gate_pred[col], lead, &plot.z, &plot.r, SECOND_CHANCE_SCALE * self.gate_d2) {
                         if best.is_none_or(|(b, _)| ll > b) {
                             best = Some((ll, col));
                         }
@@ -596,7 +619,7 @@ impl Engine {
             }
         }
         self.sensor_state[sensor].last_scan_end = Some(s.time);
-        if ended {
+        if ended || self.pending_compact {
             self.compact();
         }
     }
@@ -663,13 +686,14 @@ impl Engine {
                 self.wide.push(i as u32);
             }
         }
-        if ended {
+        if ended || self.pending_compact {
             self.compact();
         }
     }
 
     /// Drops ended tracks and refiles the rest.
     fn compact(&mut self) {
+        self.pending_compact = false;
         let before = self.tracks.len();
         self.tracks.retain(|t| t.status != TrackStatus::Ended);
         self.stats.tracks_ended += (before - self.tracks.len()) as u64;
