@@ -31,8 +31,9 @@ pub struct DemoArgs {
     /// Where to write the SVG plot and the received track records.
     #[arg(long, default_value = "target/demo")]
     pub out: PathBuf,
-    /// Replay speed: 0 sends as fast as the pacing allows.
-    #[arg(long, default_value_t = 0.0)]
+    /// Replay speed against the recorded times (30: the 8-minute feed in
+    /// 16 s); 0 sends as fast as the pacing allows.
+    #[arg(long, default_value_t = 30.0)]
     pub speed: f64,
     /// No live table (for scripts and tests).
     #[arg(long)]
@@ -45,6 +46,9 @@ pub fn demo(args: &DemoArgs) -> Result<()> {
     // The demo feed carries its recorded (past) times: let the live
     // plausibility check accept them, as a replay of old data needs.
     cfg.feed.max_time_offset_s = 1e10;
+    // The demo scores everything it receives: give its one subscriber a
+    // queue long enough that it never has to skip.
+    cfg.serve.subscriber_queue = cfg.serve.subscriber_queue.max(1 << 20);
     let feed_path = dir.join("feed.jsonl");
     let text = std::fs::read_to_string(&feed_path).with_context(|| format!("{}: cannot read", feed_path.display()))?;
     let lines: Vec<String> = text.lines().filter(|l| !l.trim().is_empty()).map(str::to_string).collect();
