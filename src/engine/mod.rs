@@ -81,6 +81,10 @@ const CELL_M: f64 = 2000.0;
 /// gate's squared distance (2× the distance).
 const SECOND_CHANCE_SCALE: f64 = 4.0;
 
+/// The fastest turn the gating bound allows for (rad/s): 6°/s, twice a
+/// fast boat's hard turn (common practice).
+const MAX_TURN_RATE: f64 = 6.0 * std::f64::consts::PI / 180.0;
+
 /// Batches span at most this fraction of the sensor's scan period.
 const BATCH_FRACTION: f64 = 1.0 / 16.0;
 
@@ -139,6 +143,11 @@ pub struct Engine {
     identified_silence_s: f64,
     identity_gate_m: f64,
     max_speed_mps: f64,
+    /// The largest plot error variance (trace of R) of any sensor, at its
+    /// maximum range, for the grid's reach bound.
+    max_plot_var: f64,
+    /// The largest acceleration spectral density of any motion model.
+    max_accel_psd: f64,
     /// Some track ended outside a scan end or sweep: compact at the next one.
     pending_compact: bool,
     /// Live tracks, in order of creation (so of track number).
@@ -215,6 +224,13 @@ impl Engine {
         let sensor_table = cfg.sensor_table();
         let sensor_names = cfg.sensors.iter().map(|s| Arc::<str>::from(s.id.as_str())).collect();
         let models = SensorModel::all(cfg, &site);
+        let max_plot_var = models
+            .iter()
+            .map(|m| match m.kind {
+                SensorKind::Radar => m.sigma_r_m * m.sigma_r_m + (m.sigma_b_rad * m.max_range_m).powi(2),
+                SensorKind::Transponder => 2.0 * m.position_sigma_m * m.position_sigma_m,
+            })
+            .fold(0.0, f64::max);
         Ok(Engine {
             radii: radii_of_curvature(cfg.site.lat_deg.to_radians()),
             site,
@@ -235,6 +251,8 @@ impl Engine {
             identity_gate_m: t.identity_gate_m,
             max_speed_mps: t.max_speed_kn * crate::feed::tracks::MPS_PER_KNOT,
             pending_compact: false,
+            max_plot_var,
+            max_accel_psd: t.quiet_accel_psd.max(t.manoeuvre_accel_psd).max(t.turn_accel_psd),
             tracks: Vec::new(),
             grid: HashMap::new(),
             wide: Vec::new(),
@@ -311,7 +329,7 @@ impl Engine {
 
     /// The latest state of every live track, by track number.
     pub fn picture(&self) -> Vec<TrackRecord> {
-        self.tracks.iter().filter(|t| t.status != TrackStatus::Ended).map(|t| self.record_of(t, t.time, &self.imm.combine(&t.state), None)).collect()
+        self.tracks.iter().filter(|t| t.status != TrackStatus::Ended).map(|t| self.record_of(t, t.time, &t.est, None)).collect()
     }
 
     pub fn stats(&self) -> EngineStats {
@@ -386,7 +404,8 @@ impl Engine {
         p[(4, 4)] = INIT_TURN_SIGMA * INIT_TURN_SIGMA;
         let x = StateVec::new(z.x, z.y, 0.0, 0.0, 0.0);
         let state = self.imm.init(Gaussian { x, p }, Some(&self.mu0));
-        let mut t = Track::new(self.next_number, state, time, sensor);
+        let est = self.imm.combine(&state);
+        let mut t = Track::new(self.next_number, state, est, time, sensor);
         self.next_number += 1;
         self.stats.tracks_started += 1;
         t.look(true, &self.rules);
@@ -400,8 +419,7 @@ impl Engine {
     /// Files track `idx` under the cell of its current position.
     fn refile(&mut self, idx: u32) {
         let t = &self.tracks[idx as usize];
-        let g = self.imm.combine(&t.state);
-        let cell = cell_of(&Vector2::new(g.x[0], g.x[1]));
+        let cell = cell_of(&Vector2::new(t.est.x[0], t.est.x[1]));
         if cell == t.cell {
             return;
         }
@@ -431,19 +449,19 @@ impl Engine {
         };
         let rules = self.rules;
         let max_speed = self.max_speed_mps;
+        let est = self.imm.combine(&state);
         let t = &mut self.tracks[idx as usize];
         t.state = state;
+        t.est = est;
         t.time = time;
         t.note_hit(sensor, time);
         if t.status == TrackStatus::Tentative {
             // A tentative track faster than any vessel here is clutter
             // strung together: end it rather than confirm it.
-            let g = self.imm.combine(&t.state);
-            if g.x[2].hypot(g.x[3]) > max_speed {
+            if est.x[2].hypot(est.x[3]) > max_speed {
                 t.status = TrackStatus::Ended;
                 self.pending_compact = true;
-                let g = self.imm.combine(&self.tracks[idx as usize].state);
-                out.push(self.record_of(&self.tracks[idx as usize], time, &g, Some(sensor)));
+                out.push(self.record_of(&self.tracks[idx as usize], time, &est, Some(sensor)));
                 return true;
             }
         }
@@ -451,8 +469,7 @@ impl Engine {
         if first_hit_this_scan {
             t.look(true, &rules);
         }
-        let g = self.imm.combine(&self.tracks[idx as usize].state);
-        out.push(self.record_of(&self.tracks[idx as usize], time, &g, Some(sensor)));
+        out.push(self.record_of(&self.tracks[idx as usize], time, &est, Some(sensor)));
         self.refile(idx);
         true
     }
@@ -493,6 +510,22 @@ impl Engine {
                 let t = &mut self.tracks[idx as usize];
                 if t.status == TrackStatus::Ended {
                     continue;
+                }
+                // Cheap bound first: the combined estimate moved on by its
+                // velocity, with a radius no model's gate (nor the
+                // manoeuvre gate) can exceed. Most neighbours of a plot
+                // fail it without an IMM prediction.
+                {
+                    let e = &t.est;
+                    let dt = plot.det.time.secs_since(t.time).max(0.0);
+                    let de = plot.z.x - (e.x[0] + e.x[2] * dt);
+                    let dn = plot.z.y - (e.x[1] + e.x[3] * dt);
+                    let turn_drift = e.x[2].hypot(e.x[3]) * MAX_TURN_RATE * dt * dt * 0.5;
+                    let var = e.p[(0, 0)] + e.p[(1, 1)] + dt * dt * (e.p[(2, 2)] + e.p[(3, 3)]) + 2.0 * self.max_accel_psd * dt * dt * dt / 3.0 + plot.r[(0, 0)] + plot.r[(1, 1)];
+                    let reach = (SECOND_CHANCE_SCALE * self.gate_d2 * var).sqrt() + turn_drift;
+                    if de * de + dn * dn > reach * reach {
+                        continue;
+                    }
                 }
                 if t.visit != serial {
                     // First plot of this batch to look at this track: give
@@ -576,7 +609,7 @@ impl Engine {
                 }
                 let idx = self.new_track(&plot.z, &plot.r, plot.det.time, sensor);
                 let t = &self.tracks[idx as usize];
-                let g = self.imm.combine(&t.state);
+                let g = t.est;
                 out.push(self.record_of(t, plot.det.time, &g, Some(sensor)));
             }
         }
@@ -605,7 +638,7 @@ impl Engine {
                 continue; // hit already counted in this scan
             }
             let dt = s.time.secs_since(t.time).max(0.0);
-            let g = self.imm.combine(&t.state);
+            let g = t.est;
             let at = Vector2::new(g.x[0] + g.x[2] * dt, g.x[1] + g.x[3] * dt);
             if !self.models[sensor].covers(&at, s.sector_deg) {
                 continue;
@@ -656,7 +689,7 @@ impl Engine {
             }
             let silence = at.secs_since(t.time);
             let limit = if t.identity.is_some() { self.identified_silence_s } else { self.max_silence_s };
-            let g = self.imm.combine(&t.state);
+            let g = t.est;
             let dt = silence.max(0.0);
             let at_pos = Vector2::new(g.x[0] + g.x[2] * dt, g.x[1] + g.x[3] * dt);
             if silence > limit {
@@ -678,7 +711,7 @@ impl Engine {
             // the grown position uncertainty and the widest plot error.
             let horizon = dt + 1.0;
             let speed = g.x[2].hypot(g.x[3]) + 3.0 * (g.p[(2, 2)] + g.p[(3, 3)]).sqrt();
-            let pos_var = g.p[(0, 0)] + g.p[(1, 1)] + horizon * horizon * (g.p[(2, 2)] + g.p[(3, 3)]) + 300.0 * 300.0;
+            let pos_var = g.p[(0, 0)] + g.p[(1, 1)] + horizon * horizon * (g.p[(2, 2)] + g.p[(3, 3)]) + self.max_plot_var;
             let reach = speed * horizon + (self.gate_d2 * pos_var).sqrt();
             let wide = reach > CELL_M;
             self.tracks[i].wide = wide;
@@ -720,7 +753,7 @@ impl Engine {
         if let Some(&idx) = self.identities.get(&r.id) {
             let t = &self.tracks[idx as usize];
             let dt = r.time.secs_since(t.time).max(0.0);
-            let g = self.imm.combine(&t.state);
+            let g = t.est;
             let at = Vector2::new(g.x[0] + g.x[2] * dt, g.x[1] + g.x[3] * dt);
             if (at - z).norm() <= self.identity_gate_m {
                 self.update_track(idx, &z, &rcov, r.time, r.sensor, out);
@@ -773,7 +806,7 @@ impl Engine {
                 self.tracks[idx as usize].identity = Some(r.id.clone());
                 self.identities.insert(r.id.clone(), idx);
                 let t = &self.tracks[idx as usize];
-                let g = self.imm.combine(&t.state);
+                let g = t.est;
                 out.push(self.record_of(t, r.time, &g, Some(r.sensor)));
                 idx
             }
