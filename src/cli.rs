@@ -33,7 +33,7 @@ pub enum Command {
     /// Score track records against truth (GOSPA, continuity, errors).
     Score(crate::score::ScoreArgs),
     /// One command that shows skerry working on the bundled demo harbour.
-    Demo(DemoArgs),
+    Demo(crate::demo::DemoArgs),
 }
 
 #[derive(clap::Args, Debug)]
@@ -57,13 +57,6 @@ pub struct CheckArgs {
     /// Feed files (JSON Lines).
     #[arg(required = true)]
     pub feeds: Vec<PathBuf>,
-}
-
-#[derive(clap::Args, Debug)]
-pub struct DemoArgs {
-    /// Folder with the demo scenario (feed.jsonl, truth.jsonl, config.toml).
-    #[arg(long, default_value = "demo-feeds/busy-afternoon")]
-    pub scenario: PathBuf,
 }
 
 pub fn load_config(path: &std::path::Path) -> Result<Config> {
@@ -138,23 +131,6 @@ pub fn check(args: &CheckArgs) -> Result<()> {
     Ok(())
 }
 
-pub fn demo(args: &DemoArgs) -> Result<()> {
-    let cfg = load_config(&args.scenario.join("config.toml"))?;
-    let feed = read_feeds(&[args.scenario.join("feed.jsonl")], &cfg)?;
-    let start = std::time::Instant::now();
-    let tracks = run_engine(&cfg, &feed.records)?;
-    let elapsed = start.elapsed();
-    let mut firm = std::collections::BTreeSet::new();
-    for t in &tracks {
-        if t.status.is_firm() {
-            firm.insert(t.track);
-        }
-    }
-    println!("skerry demo: {} feed records from {}", feed.records.len(), args.scenario.display());
-    println!("  {} track records, {} tracks ever confirmed, engine time {:.3} s", tracks.len(), firm.len(), elapsed.as_secs_f64());
-    Ok(())
-}
-
 pub fn main() -> Result<()> {
     let cli = Cli::parse();
     match &cli.command {
@@ -165,6 +141,6 @@ pub fn main() -> Result<()> {
         Command::Watch(a) => crate::daemon::watch_main(a),
         Command::Simulate(a) => crate::sim::run(a),
         Command::Score(a) => crate::score::run(a),
-        Command::Demo(a) => demo(a),
+        Command::Demo(a) => crate::demo::demo(a),
     }
 }

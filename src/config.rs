@@ -129,6 +129,9 @@ pub struct TrackingConfig {
     pub identified_silence_s: f64,
     /// 1-sigma speed of a new track on each axis (m/s).
     pub init_speed_sigma_mps: f64,
+    /// A tentative track estimated faster than this is ended, not
+    /// confirmed (kn).
+    pub max_speed_kn: f64,
     /// Expected new vessels per km² per scan, for the cost of starting a
     /// track.
     pub new_track_density_per_km2: f64,
@@ -400,6 +403,7 @@ impl Config {
             ("tracking.max_silence_s", t.max_silence_s),
             ("tracking.identified_silence_s", t.identified_silence_s),
             ("tracking.init_speed_sigma_mps", t.init_speed_sigma_mps),
+            ("tracking.max_speed_kn", t.max_speed_kn),
             ("tracking.quiet_accel_psd", t.quiet_accel_psd),
             ("tracking.manoeuvre_accel_psd", t.manoeuvre_accel_psd),
             ("tracking.turn_accel_psd", t.turn_accel_psd),
@@ -466,7 +470,7 @@ association = "gnn"
         let c = load(GOOD).unwrap();
         assert_eq!(c.sensors.len(), 2);
         assert_eq!(c.tracking.association, Association::Gnn);
-        assert_eq!(c.tracking.confirm_hits, 3);
+        assert_eq!(c.tracking.confirm_hits, 4);
         assert_eq!(c.serve.udp_addr, "127.0.0.1:4100");
     }
 

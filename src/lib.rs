@@ -4,6 +4,7 @@
 pub mod cli;
 pub mod config;
 pub mod daemon;
+pub mod demo;
 pub mod engine;
 pub mod feed;
 pub mod geo;

@@ -64,6 +64,23 @@ pub fn decode_bytes(bytes: &[u8], file: &Path, sensors: &SensorTable, feed: &mut
     }
 }
 
+/// The order in which a feed is processed: by time; at equal times
+/// plots, then reports, then scan ends (a plot stamped at the end of a
+/// scan still belongs to it), then by sensor and content. The order is
+/// total up to identical records, so the file order never matters.
+pub fn feed_order(a: &Record, b: &Record) -> std::cmp::Ordering {
+    let rank = |r: &Record| match r {
+        Record::Detection(_) => 0u8,
+        Record::Report(_) => 1,
+        Record::ScanEnd(_) => 2,
+    };
+    a.time()
+        .cmp(&b.time())
+        .then(rank(a).cmp(&rank(b)))
+        .then(a.sensor().cmp(&b.sensor()))
+        .then_with(|| a.content_hash().cmp(&b.content_hash()))
+}
+
 /// Reads, decodes, screens and orders the feed files.
 pub fn read_feeds(paths: &[PathBuf], cfg: &Config) -> Result<Feed, ReadError> {
     let sensors = cfg.sensor_table();
@@ -76,8 +93,7 @@ pub fn read_feeds(paths: &[PathBuf], cfg: &Config) -> Result<Feed, ReadError> {
     let mut times: Vec<Timestamp> = decoded.iter().map(Record::time).collect();
     let reference = median_time(&mut times);
     let mut screen = Screen::new(reference, cfg.feed.max_time_offset_s);
-    // Stable: records with equal times keep their file order.
-    decoded.sort_by_key(Record::time);
+    decoded.sort_by(feed_order);
     feed.records.reserve(decoded.len());
     for r in decoded {
         match screen.admit(&r) {

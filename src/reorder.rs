@@ -35,12 +35,18 @@
 //! 3. The feed time `F` is the newest `hi` among the agreeing sensors.
 //! 4. An agreeing sensor that sent something within the last `window_s` of
 //!    daemon time may still have records up to `window_s` older than its
-//!    newest on the way: it bounds `R` by `hi - window_s` (or by `hi` when
-//!    its latest record was a `scan_end`, its stream has so far come in
-//!    order, and `scan_end_closes` is set: the scan is complete). A sensor
-//!    quiet for longer bounds nothing: whatever it sent was due a window
-//!    ago. So `R` = the least bound, or `F` when the whole feed has been
-//!    quiet for a window; with every sensor silent, everything held is due.
+//!    newest on the way: it bounds `R` by `hi - window_s + q`, where `q` is
+//!    how long it has now been quiet (or by `hi` when its latest record was
+//!    a `scan_end`, its stream has so far come in order, and
+//!    `scan_end_closes` is set: the scan is complete). A record delayed by
+//!    `d` arrives at least `q` after the sensor's newest, which is at most
+//!    `d` newer than it, so it is still ahead of that bound while
+//!    `d < window_s`; and while a sensor pauses, what it sent leaves at the
+//!    pace it came instead of in one burst. A sensor quiet for a whole
+//!    window bounds nothing: whatever it sent is due. So `R` = the least
+//!    bound, or `F` when the whole feed has been quiet for a window. With every sensor silent, all that the sensors
+//!    last seen agreeing sent is due (a sensor ahead keeps its records held,
+//!    so an outage does not carry the release time to its clock).
 //!
 //! A record is thus late only when it arrived more than `window_s` after
 //! records of its time from the slowest agreeing sensor, or after the
@@ -140,6 +146,8 @@ struct Sensor {
     /// A record of this sensor came older than its own `hi`.
     disordered: bool,
     state: Option<ClockState>,
+    /// Agreed with the others when last not silent.
+    agreed: bool,
 }
 
 struct Held {
@@ -150,7 +158,7 @@ struct Held {
 
 impl PartialEq for Held {
     fn eq(&self, o: &Self) -> bool {
-        (self.time, self.seq) == (o.time, o.seq)
+        self.cmp(o) == Ordering::Equal
     }
 }
 impl Eq for Held {}
@@ -161,8 +169,10 @@ impl PartialOrd for Held {
 }
 impl Ord for Held {
     // Reversed: BinaryHeap is a max-heap and the earliest must come first.
+    // Equal times follow the offline order (crate::offline::feed_order), so
+    // live and offline runs process a scan's records identically.
     fn cmp(&self, o: &Self) -> Ordering {
-        (o.time, o.seq).cmp(&(self.time, self.seq))
+        crate::offline::feed_order(&o.rec, &self.rec).then(o.seq.cmp(&self.seq))
     }
 }
 
@@ -247,11 +257,10 @@ impl Reorder {
                 }
             }
         }
-        if let Record::ScanEnd(_) = rec {
-            if s.hi == Some(t) {
+        if let Record::ScanEnd(_) = rec
+            && s.hi == Some(t) {
                 s.closed = true;
             }
-        }
         if self.released.is_some_and(|r| t < r) {
             return Admit::Late;
         }
@@ -268,12 +277,11 @@ impl Reorder {
     pub fn pop_due(&mut self, now: Timestamp, out: &mut Vec<Record>) -> Option<Timestamp> {
         let due = self.due_time(now);
         let mut moved = None;
-        if let Some(d) = due {
-            if self.released.is_none_or(|r| d > r) {
+        if let Some(d) = due
+            && self.released.is_none_or(|r| d > r) {
                 self.released = Some(d);
                 moved = Some(d);
             }
-        }
         if let Some(r) = self.released {
             while self.heap.peek().is_some_and(|h| h.time <= r) {
                 if let Some(h) = self.heap.pop() {
@@ -330,12 +338,15 @@ impl Reorder {
             self.scratch.push((hi, s.offset_s.unwrap_or(0.0).abs(), i));
         }
         if self.scratch.is_empty() {
-            // Every sensor silent: all that is held is due.
-            return self.heap.iter().map(|h| h.time).max();
+            // Every sensor silent: all that the agreeing sensors sent is
+            // due. A sensor that was ahead keeps its records held, so that
+            // an outage does not carry the release time to its clock.
+            let agreed = self.sensors.iter().filter(|s| s.agreed).filter_map(|s| s.hi).max();
+            return agreed.or_else(|| self.heap.iter().map(|h| h.time).max());
         }
         // 2. The largest group within max_skew_s (ties: nearest the
         // daemon's clock). Sorted by clock, a group is a run [a, b].
-        self.scratch.sort_by(|x, y| x.0.cmp(&y.0));
+        self.scratch.sort_by_key(|x| x.0);
         let n = self.scratch.len();
         let (mut best_a, mut best_b, mut best_off) = (0usize, 0usize, f64::INFINITY);
         let mut b = 0;
@@ -354,13 +365,15 @@ impl Reorder {
             }
         }
         for (k, &(_, _, i)) in self.scratch.iter().enumerate() {
-            self.sensors[i].state = Some(if k < best_a {
+            let state = if k < best_a {
                 ClockState::Behind
             } else if k > best_b {
                 ClockState::Ahead
             } else {
                 ClockState::Agrees
-            });
+            };
+            self.sensors[i].state = Some(state);
+            self.sensors[i].agreed = state == ClockState::Agrees;
         }
         // 3. The feed time.
         let feed = self.scratch[best_b].0;
@@ -368,11 +381,14 @@ impl Reorder {
         let mut due = feed;
         for &(hi, _, i) in &self.scratch[best_a..=best_b] {
             let s = &self.sensors[i];
-            let quiet = s.last_arrival.is_none_or(|a| now.secs_since(a) >= cfg.window_s);
-            if quiet {
+            let quiet_s = s.last_arrival.map_or(f64::INFINITY, |a| now.secs_since(a).max(0.0));
+            if quiet_s >= cfg.window_s {
                 continue;
             }
-            let bound = if cfg.scan_end_closes && s.closed && !s.disordered { hi } else { hi.plus_secs(-cfg.window_s) };
+            // While the sensor pauses, its bound follows the clock: what it
+            // sent leaves at the pace it came, a window later, rather than
+            // in one burst when the pause reaches the window.
+            let bound = if cfg.scan_end_closes && s.closed && !s.disordered { hi } else { hi.plus_secs(quiet_s - cfg.window_s) };
             if bound < due {
                 due = bound;
             }
@@ -507,11 +523,10 @@ mod tests {
             for (_, rec) in keyed {
                 let t = rec.time().secs_since(ts(0.0));
                 if speed > 0.0 {
-                    if let Some(p) = prev {
-                        if t > p {
+                    if let Some(p) = prev
+                        && t > p {
                             wall += (t - p) / speed;
                         }
-                    }
                     prev = Some(prev.map_or(t, |p: f64| p.max(t)));
                 } else {
                     wall += 1e-5;
@@ -567,9 +582,12 @@ mod tests {
         r.push(det(0, 0.3, 0.0), ts(100.3));
         assert_eq!(r.pop_due(ts(100.3), &mut out), Some(ts(-0.7)));
         assert!(out.is_empty());
-        // Less than a window of quiet: still held.
-        r.pop_due(ts(101.2), &mut out);
+        // While the feed is quiet, the release time follows the clock, a
+        // window behind the newest record.
+        assert_eq!(r.pop_due(ts(100.9), &mut out), Some(ts(-0.1)));
         assert!(out.is_empty());
+        r.pop_due(ts(101.2), &mut out);
+        assert_eq!(times(&out), vec![0.0]);
         // A window of quiet: everything up to the newest is due.
         assert_eq!(r.pop_due(ts(101.31), &mut out), Some(ts(0.3)));
         assert_eq!(times(&out), vec![0.0, 0.3]);
@@ -640,6 +658,31 @@ mod tests {
         assert_eq!(states, vec![ClockState::Agrees, ClockState::Agrees, ClockState::Ahead]);
         let off = r.clocks().nth(2).unwrap().offset_s.unwrap();
         assert!((off + 3600.0).abs() < 1.0, "{off}");
+    }
+
+    #[test]
+    fn an_outage_does_not_carry_the_release_time_to_a_sensor_ahead() {
+        let mut r = Reorder::new(cfg());
+        let mut out = Vec::new();
+        for i in 0..30 {
+            let t = i as f64 * 0.1;
+            for (s, skew) in [(0, 0.0), (1, 0.0), (2, 3600.0)] {
+                r.push(det(s, t + skew, 0.0), ts(t));
+            }
+            r.pop_due(ts(t), &mut out);
+        }
+        // Everyone silent for longer than idle_s: the agreeing sensors'
+        // records are all released, the one ahead keeps its own held.
+        out.clear();
+        r.pop_due(ts(20.0), &mut out);
+        assert_eq!(r.released(), Some(ts(2.9)));
+        assert!(out.iter().all(|x| x.sensor() != 2));
+        assert_eq!(r.len(), 30);
+        // They come back: nothing they send is late.
+        for i in 0..10 {
+            let t = 3.0 + i as f64 * 0.1;
+            assert_eq!(r.push(det(0, t, 0.0), ts(20.0 + t)), Admit::Held);
+        }
     }
 
     #[test]
@@ -746,15 +789,25 @@ mod tests {
     }
 
     #[test]
-    fn equal_times_leave_in_arrival_order() {
-        let mut r = Reorder::new(cfg());
+    fn equal_times_leave_in_the_offline_order_whatever_the_arrival() {
+        // Records with equal times are released in crate::offline::feed_order,
+        // the order `skerry track` uses, whichever way they arrived.
         let recs: Vec<_> = (0..5).map(|k| det(0, 1.0, k as f64)).collect();
-        for rec in &recs {
-            r.push(rec.clone(), ts(1.0));
+        let mut expected = recs.clone();
+        expected.sort_by(crate::offline::feed_order);
+        for reversed in [false, true] {
+            let mut r = Reorder::new(cfg());
+            let mut order = recs.clone();
+            if reversed {
+                order.reverse();
+            }
+            for rec in &order {
+                r.push(rec.clone(), ts(1.0));
+            }
+            let mut out = Vec::new();
+            r.drain(&mut out);
+            assert_eq!(out, expected);
         }
-        let mut out = Vec::new();
-        r.drain(&mut out);
-        assert_eq!(out, recs);
     }
 
     #[test]

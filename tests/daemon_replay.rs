@@ -149,7 +149,6 @@ async fn shutdown_during_replay_is_quick_and_loses_nothing_accepted() {
 /// `skerry serve` as a process: SIGTERM during a replay exits 0 within
 /// 2 s, and its final log line accounts for every accepted record.
 #[test]
-#[ignore = "needs `skerry serve` wired into src/cli.rs and src/main.rs by the lead"]
 fn sigterm_during_replay_exits_zero_quickly() {
     use std::io::{BufRead, BufReader};
     use std::process::{Command, Stdio};

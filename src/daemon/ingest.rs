@@ -28,7 +28,7 @@
 use super::clock::DaemonClock;
 use super::metrics::{self, Metrics};
 use super::proto::{self, v1};
-use crate::feed::{self, Record, Reject, RejectReason, Screen, SensorId, SensorTable};
+use crate::feed::{self, Record, Reject, RejectReason, SensorId, SensorTable};
 use crate::time::Timestamp;
 use prost::Message;
 use std::collections::HashMap;
@@ -198,18 +198,16 @@ impl IngestContext {
             Err(e) => return self.rejected(&e, src, now, tally),
         };
         let s = rec.sensor();
-        if let (Some(list), Some(src)) = (self.allow.get(s as usize), src) {
-            if !list.is_empty() && !list.iter().any(|a| a.contains(src.ip())) {
+        if let (Some(list), Some(src)) = (self.allow.get(s as usize), src)
+            && !list.is_empty() && !list.iter().any(|a| a.contains(src.ip())) {
                 let text = format!("source {} is not on the allow-list of sensor {}", src.ip(), self.sensors.name(s));
                 return self.rejected_key(Some(s), metrics::reason_index("not_allowed"), &text, Some(src), now, tally);
             }
-        }
-        // Plausibility against the daemon's clock, before ordering: a wild
-        // time must not reach the reorder buffer's sensor clocks.
-        let mut screen = Screen::new(Some(now), self.max_time_offset_s);
-        screen.set_reference(now);
-        if let Err(e) = screen.plausible(&rec) {
-            return self.rejected(&e, src, now, tally);
+        // Plausibility against the daemon's clock (as feed::Screen judges
+        // it), before ordering: a wild time must not reach the reorder
+        // buffer's sensor clocks.
+        if rec.time().secs_since(now).abs() > self.max_time_offset_s {
+            return self.rejected(&Reject { reason: RejectReason::ImplausibleTime, sensor: Some(s) }, src, now, tally);
         }
         match self.tx.try_send(Arrival { rec, at: now }) {
             Ok(()) => {

@@ -210,11 +210,10 @@ impl Metrics {
                 (Some(SensorKind::Radar), Some(p)) => Some((self.silent_scans * p, format!("more than {} scans of {} s", self.silent_scans, p))),
                 _ => Some((self.transponder_silent_s, format!("more than {} s", self.transponder_silent_s))),
             };
-            if let Some((lim, why)) = limit {
-                if silent > lim {
+            if let Some((lim, why)) = limit
+                && silent > lim {
                     out.push(format!("sensor {name} silent for {silent:.1} s ({why})"));
                 }
-            }
             if let Some(c) = self.clock(id) {
                 match c.state {
                     ClockState::Ahead | ClockState::Behind => {

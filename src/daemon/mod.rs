@@ -173,14 +173,10 @@ pub struct RunSummary {
 
 impl RunSummary {
     /// Every accepted record is accounted for: processed, late, duplicate
-    /// or dropped by a full reorder buffer.
+    /// or dropped by a full reorder buffer (ingest-queue drops are never
+    /// counted as accepted).
     pub fn accounted(&self) -> bool {
-        self.accepted == self.processed + self.late + self.duplicates + (self.dropped_after_accept())
-    }
-    fn dropped_after_accept(&self) -> u64 {
-        // Ingest-queue drops are never counted as accepted; only the
-        // reorder buffer's are.
-        self.dropped
+        self.accepted == self.processed + self.late + self.duplicates + self.dropped
     }
 }
 
@@ -407,5 +403,40 @@ async fn rates_task(metrics: Arc<Metrics>, period: Duration, stop: CancellationT
                 prev = cur;
             }
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::collections::HashMap;
+
+    /// deploy/skerry.toml documents every [serve] key with its default.
+    #[test]
+    fn deploy_config_documents_every_serve_key_with_its_default() {
+        let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("deploy/skerry.toml");
+        let deployed = Config::load(Some(&path), &HashMap::new()).unwrap();
+        let demo = Config::load(None, &HashMap::new()).unwrap();
+        let a = toml::Value::try_from(&deployed.serve).unwrap();
+        let b = toml::Value::try_from(&demo.serve).unwrap();
+        assert_eq!(a, b, "deploy/skerry.toml [serve] differs from the defaults");
+        let text = std::fs::read_to_string(&path).unwrap();
+        for key in b.as_table().unwrap().keys() {
+            assert!(text.contains(&format!("\n{key} =")) || text.contains(&format!("# {key} =")), "deploy/skerry.toml lacks `{key}`");
+        }
+        check_settings(&deployed).unwrap();
+    }
+
+    #[test]
+    fn bad_settings_name_the_key() {
+        let mut env = HashMap::new();
+        env.insert("SKERRY__SERVE__REORDER_WINDOW_S".to_string(), "-1".to_string());
+        let cfg = Config::load(None, &env).unwrap();
+        let e = check_settings(&cfg).unwrap_err().to_string();
+        assert!(e.contains("serve.reorder_window_s"), "{e}");
+        let mut cfg = Config::load(None, &HashMap::new()).unwrap();
+        cfg.sensors[0].allow_from = vec!["10.0.0.0/8".into(), "quay".into()];
+        let e = check_settings(&cfg).unwrap_err().to_string();
+        assert!(e.contains("sensors[0].allow_from[1]"), "{e}");
     }
 }

@@ -87,11 +87,10 @@ impl Sent {
             self.last.remove(&r.track);
             return true;
         }
-        if let Some((t, st)) = prev {
-            if st == r.status && r.time.secs_since(t) < f.min_interval_s {
+        if let Some((t, st)) = prev
+            && st == r.status && r.time.secs_since(t) < f.min_interval_s {
                 return false;
             }
-        }
         self.last.insert(r.track, (r.time, r.status));
         true
     }

@@ -204,18 +204,16 @@ pub async fn replay_udp(lines: &[String], addr: &str, pace: &Pace, pb: &indicati
                 continue;
             };
             let size = batch.encoded_len() + m.encoded_len() + 4;
-            if in_buf > 0 && size + 1 > pace.datagram_bytes {
-                if let Some(d) = flush(&mut buf, &mut batch, &mut in_buf, &mut rep) {
+            if in_buf > 0 && size + 1 > pace.datagram_bytes
+                && let Some(d) = flush(&mut buf, &mut batch, &mut in_buf, &mut rep) {
                     sock.send_to(&d, dest).await.map_err(|e| ReplayError::Io(addr.into(), e))?;
                 }
-            }
             batch.records.push(m);
         } else {
-            if in_buf > 0 && buf.len() + 1 + line.len() > pace.datagram_bytes {
-                if let Some(d) = flush(&mut buf, &mut batch, &mut in_buf, &mut rep) {
+            if in_buf > 0 && buf.len() + 1 + line.len() > pace.datagram_bytes
+                && let Some(d) = flush(&mut buf, &mut batch, &mut in_buf, &mut rep) {
                     sock.send_to(&d, dest).await.map_err(|e| ReplayError::Io(addr.into(), e))?;
                 }
-            }
             if in_buf > 0 {
                 buf.push(b'\n');
             }

@@ -29,7 +29,9 @@ pub fn init_logging(json: bool, filter: Option<&str>) {
         Some(f) => EnvFilter::try_new(f).unwrap_or_else(|_| EnvFilter::new("info")),
         None => EnvFilter::try_from_default_env().unwrap_or_else(|_| EnvFilter::new("info")),
     };
-    let b = tracing_subscriber::fmt().with_env_filter(filter).with_writer(std::io::stderr);
+    use std::io::IsTerminal;
+    // Colours only on a terminal: a journal or a pipe gets plain text.
+    let b = tracing_subscriber::fmt().with_env_filter(filter).with_writer(std::io::stderr).with_ansi(std::io::stderr().is_terminal());
     let _ = if json { b.json().try_init() } else { b.try_init() };
 }
 

@@ -35,7 +35,7 @@ pub fn render_table(tracks: &BTreeMap<u64, TrackRecord>, now: Option<Timestamp>,
     let mut o = String::new();
     let firm: Vec<_> = tracks.values().filter(|t| t.status.is_firm()).collect();
     let _ = writeln!(o, "skerry watch: {} firm tracks, feed time {}{}", firm.len(), now.map(|t| t.to_rfc3339()).unwrap_or_else(|| "-".into()), if skipped > 0 { format!(", {skipped} updates skipped") } else { String::new() });
-    let _ = writeln!(o, "{:>6} {:<9} {:>11} {:>11} {:>7} {:>7} {:>7}  {:<24} {}", "track", "status", "lat", "lon", "kn", "course", "age s", "sensors", "identity");
+    let _ = writeln!(o, "{:>6} {:<9} {:>11} {:>11} {:>7} {:>7} {:>7}  {:<24} identity", "track", "status", "lat", "lon", "kn", "course", "age s", "sensors");
     for t in firm {
         let age = now.map(|n| n.secs_since(t.time)).unwrap_or(0.0);
         let sensors = t.sensors.iter().map(|s| &**s).collect::<Vec<_>>().join(",");

@@ -34,7 +34,7 @@ impl Engine {
         if let Some(&idx) = self.identities.get(&r.id) {
             let t = &self.tracks[idx as usize];
             let dt = r.time.secs_since(t.time).max(0.0);
-            let g = self.imm.combine(&t.state);
+            let g = t.est;
             let at = Vector2::new(g.x[0] + g.x[2] * dt, g.x[1] + g.x[3] * dt);
             if (at - z).norm() <= self.identity_gate_m {
                 self.tracks[idx as usize].identity_conflict = false;
@@ -89,8 +89,7 @@ impl Engine {
                 self.tracks[idx as usize].identity = Some(r.id.clone());
                 self.identities.insert(r.id.clone(), idx);
                 let t = &self.tracks[idx as usize];
-                let g = self.imm.combine(&t.state);
-                out.push(self.record_of(t, r.time, &g, Some(r.sensor)));
+                out.push(self.record_of(t, r.time, &t.est, Some(r.sensor)));
             }
         }
     }

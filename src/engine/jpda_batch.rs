@@ -473,17 +473,26 @@ impl Engine {
             let Some(state) = imm_pda_update(&self.imm, &pred, &sc.pda_plots, beta0, &params) else { continue };
             let hit = beta0 < 0.5;
             let first_hit_this_scan = t.last_hit(sensor).is_none_or(|h| Some(h) <= self.sensor_state[sensor as usize].last_scan_end);
+            let est = self.imm.combine(&state);
             let t = &mut self.tracks[idx as usize];
             t.state = state;
+            t.est = est;
             t.time = at;
             if hit {
                 t.note_hit(sensor, at);
+                // As with GNN: a tentative track faster than any vessel
+                // here is clutter strung together; end it.
+                if t.status == TrackStatus::Tentative && est.x[2].hypot(est.x[3]) > self.max_speed_mps {
+                    t.status = TrackStatus::Ended;
+                    self.pending_compact = true;
+                    out.push(self.record_of(&self.tracks[idx as usize], at, &est, Some(sensor)));
+                    continue;
+                }
                 if first_hit_this_scan {
                     t.look(true, &rules);
                 }
             }
-            let g = self.imm.combine(&self.tracks[idx as usize].state);
-            out.push(self.record_of(&self.tracks[idx as usize], at, &g, Some(sensor)));
+            out.push(self.record_of(&self.tracks[idx as usize], at, &est, Some(sensor)));
             self.refile(idx);
         }
 
@@ -498,8 +507,7 @@ impl Engine {
             }
             let idx = self.new_track(&plot.z, &plot.r, plot.det.time, sensor);
             let t = &self.tracks[idx as usize];
-            let g = self.imm.combine(&t.state);
-            out.push(self.record_of(t, plot.det.time, &g, Some(sensor)));
+            out.push(self.record_of(t, plot.det.time, &t.est, Some(sensor)));
         }
         self.jpda = sc;
         let mut plots = batch.plots;

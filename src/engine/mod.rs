@@ -86,6 +86,14 @@ pub struct EngineStats {
 /// checked against every plot instead (see `Engine::sweep`).
 const CELL_M: f64 = 2000.0;
 
+/// The manoeuvre gate of a coasting track, as a multiple of the normal
+/// gate's squared distance (2× the distance).
+const SECOND_CHANCE_SCALE: f64 = 4.0;
+
+/// The fastest turn the gating bound allows for (rad/s): 6°/s, twice a
+/// fast boat's hard turn (common practice).
+const MAX_TURN_RATE: f64 = 6.0 * std::f64::consts::PI / 180.0;
+
 /// Batches span at most this fraction of the sensor's scan period.
 const BATCH_FRACTION: f64 = 1.0 / 16.0;
 
@@ -116,13 +124,14 @@ struct SensorState {
 #[derive(Default)]
 struct Scratch {
     cand: Vec<u32>,
-    gate_pred: Vec<Gaussian>,
+    gate_pred: Vec<imm::ImmState>,
     col_track: Vec<u32>,
     pairs: Vec<(u32, u32, f64)>,
     row_alone: Vec<f64>,
     col_alone: Vec<f64>,
     row_to_col: Vec<Option<u32>>,
     near_firm: Vec<bool>,
+    col_taken: Vec<bool>,
 }
 
 pub struct Engine {
@@ -142,6 +151,14 @@ pub struct Engine {
     max_silence_s: f64,
     identified_silence_s: f64,
     identity_gate_m: f64,
+    max_speed_mps: f64,
+    /// The largest plot error variance (trace of R) of any sensor, at its
+    /// maximum range, for the grid's reach bound.
+    max_plot_var: f64,
+    /// The largest acceleration spectral density of any motion model.
+    max_accel_psd: f64,
+    /// Some track ended outside a scan end or sweep: compact at the next one.
+    pending_compact: bool,
     /// Live tracks, in order of creation (so of track number).
     tracks: Vec<Track>,
     /// Grid cell → indices into `tracks`.
@@ -163,6 +180,33 @@ pub struct Engine {
     jpda: jpda_batch::Jpda,
     /// Candidate tracks of a transponder report (identity.rs).
     report_cand: Vec<u32>,
+}
+
+/// Gates a plot against an IMM prediction made `lead` seconds before the
+/// plot: the plot is inside if it is inside any model's gate (the widest
+/// model decides at the onset of a manoeuvre, while the quiet model still
+/// holds most of the probability: common IMM practice). Returns the
+/// mixture log-likelihood ln Σ μ_j N_j(z).
+pub(crate) fn imm_gate(n_models: usize, pred: &imm::ImmState, lead: f64, z: &Vector2<f64>, r: &Matrix2<f64>, gate_d2: f64) -> Option<f64> {
+    let mut inside = false;
+    let mut terms = [f64::NEG_INFINITY; imm::MAX_MODELS];
+    for j in 0..n_models {
+        let mu = pred.mu[j];
+        if !(mu > 0.0) {
+            continue;
+        }
+        let mut g = pred.comps[j];
+        g.x[0] += g.x[2] * lead;
+        g.x[1] += g.x[3] * lead;
+        let Some(inn) = innovation(&g, z, r) else { continue };
+        inside |= inn.d2 <= gate_d2;
+        terms[j] = mu.ln() + inn.log_likelihood();
+    }
+    if !inside {
+        return None;
+    }
+    let m = terms.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    Some(m + terms.iter().map(|t| (t - m).exp()).sum::<f64>().ln())
 }
 
 fn cell_of(p: &Vector2<f64>) -> (i32, i32) {
@@ -195,6 +239,13 @@ impl Engine {
         let sensor_table = cfg.sensor_table();
         let sensor_names = cfg.sensors.iter().map(|s| Arc::<str>::from(s.id.as_str())).collect();
         let models = SensorModel::all(cfg, &site);
+        let max_plot_var = models
+            .iter()
+            .map(|m| match m.kind {
+                SensorKind::Radar => m.sigma_r_m * m.sigma_r_m + (m.sigma_b_rad * m.max_range_m).powi(2),
+                SensorKind::Transponder => 2.0 * m.position_sigma_m * m.position_sigma_m,
+            })
+            .fold(0.0, f64::max);
         Ok(Engine {
             radii: radii_of_curvature(cfg.site.lat_deg.to_radians()),
             site,
@@ -213,6 +264,10 @@ impl Engine {
             max_silence_s: t.max_silence_s,
             identified_silence_s: t.identified_silence_s,
             identity_gate_m: t.identity_gate_m,
+            max_speed_mps: t.max_speed_kn * crate::feed::tracks::MPS_PER_KNOT,
+            pending_compact: false,
+            max_plot_var,
+            max_accel_psd: t.quiet_accel_psd.max(t.manoeuvre_accel_psd).max(t.turn_accel_psd),
             tracks: Vec::new(),
             grid: HashMap::new(),
             wide: Vec::new(),
@@ -292,7 +347,7 @@ impl Engine {
 
     /// The latest state of every live track, by track number.
     pub fn picture(&self) -> Vec<TrackRecord> {
-        self.tracks.iter().filter(|t| t.status != TrackStatus::Ended).map(|t| self.record_of(t, t.time, &self.imm.combine(&t.state), None)).collect()
+        self.tracks.iter().filter(|t| t.status != TrackStatus::Ended).map(|t| self.record_of(t, t.time, &t.est, None)).collect()
     }
 
     pub fn stats(&self) -> EngineStats {
@@ -368,7 +423,8 @@ impl Engine {
         p[(4, 4)] = INIT_TURN_SIGMA * INIT_TURN_SIGMA;
         let x = StateVec::new(z.x, z.y, 0.0, 0.0, 0.0);
         let state = self.imm.init(Gaussian { x, p }, Some(&self.mu0));
-        let mut t = Track::new(self.next_number, state, time, sensor);
+        let est = self.imm.combine(&state);
+        let mut t = Track::new(self.next_number, state, est, time, sensor);
         self.next_number += 1;
         self.stats.tracks_started += 1;
         t.look(true, &self.rules);
@@ -382,8 +438,7 @@ impl Engine {
     /// Files track `idx` under the cell of its current position.
     fn refile(&mut self, idx: u32) {
         let t = &self.tracks[idx as usize];
-        let g = self.imm.combine(&t.state);
-        let cell = cell_of(&Vector2::new(g.x[0], g.x[1]));
+        let cell = cell_of(&Vector2::new(t.est.x[0], t.est.x[1]));
         if cell == t.cell {
             return;
         }
@@ -412,15 +467,28 @@ impl Engine {
             (_, last_end) => t.last_hit(sensor).is_none_or(|h| Some(h) <= last_end),
         };
         let rules = self.rules;
+        let max_speed = self.max_speed_mps;
+        let est = self.imm.combine(&state);
         let t = &mut self.tracks[idx as usize];
         t.state = state;
+        t.est = est;
         t.time = time;
         t.note_hit(sensor, time);
+        if t.status == TrackStatus::Tentative {
+            // A tentative track faster than any vessel here is clutter
+            // strung together: end it rather than confirm it.
+            if est.x[2].hypot(est.x[3]) > max_speed {
+                t.status = TrackStatus::Ended;
+                self.pending_compact = true;
+                out.push(self.record_of(&self.tracks[idx as usize], time, &est, Some(sensor)));
+                return true;
+            }
+        }
+        let t = &mut self.tracks[idx as usize];
         if first_hit_this_scan {
             t.look(true, &rules);
         }
-        let g = self.imm.combine(&self.tracks[idx as usize].state);
-        out.push(self.record_of(&self.tracks[idx as usize], time, &g, Some(sensor)));
+        out.push(self.record_of(&self.tracks[idx as usize], time, &est, Some(sensor)));
         self.refile(idx);
         true
     }
@@ -466,6 +534,22 @@ impl Engine {
                 if t.status == TrackStatus::Ended {
                     continue;
                 }
+                // Cheap bound first: the combined estimate moved on by its
+                // velocity, with a radius no model's gate (nor the
+                // manoeuvre gate) can exceed. Most neighbours of a plot
+                // fail it without an IMM prediction.
+                {
+                    let e = &t.est;
+                    let dt = plot.det.time.secs_since(t.time).max(0.0);
+                    let de = plot.z.x - (e.x[0] + e.x[2] * dt);
+                    let dn = plot.z.y - (e.x[1] + e.x[3] * dt);
+                    let turn_drift = e.x[2].hypot(e.x[3]) * MAX_TURN_RATE * dt * dt * 0.5;
+                    let var = e.p[(0, 0)] + e.p[(1, 1)] + dt * dt * (e.p[(2, 2)] + e.p[(3, 3)]) + 2.0 * self.max_accel_psd * dt * dt * dt / 3.0 + plot.r[(0, 0)] + plot.r[(1, 1)];
+                    let reach = (SECOND_CHANCE_SCALE * self.gate_d2 * var).sqrt() + turn_drift;
+                    if de * de + dn * dn > reach * reach {
+                        continue;
+                    }
+                }
                 if t.visit != serial {
                     // First plot of this batch to look at this track: give
                     // it a column and its gating prediction at the batch start.
@@ -474,29 +558,22 @@ impl Engine {
                     let dt = batch.first.secs_since(t.time).max(0.0);
                     let pred = if dt > 0.0 { self.imm.predict(&t.state, dt) } else { t.state };
                     sc.col_track.push(idx);
-                    sc.gate_pred.push(self.imm.combine(&pred));
+                    sc.gate_pred.push(pred);
                 }
                 let t = &self.tracks[idx as usize];
                 if t.last_hit(sensor).is_some_and(|h| plot.det.time.secs_since(h) < min_gap) {
                     continue;
                 }
                 let col = t.col as usize;
-                let g = &sc.gate_pred[col];
                 let lead = plot.det.time.secs_since(batch.first);
-                let mut moved = *g;
-                moved.x[0] += g.x[2] * lead;
-                moved.x[1] += g.x[3] * lead;
-                let Some(inn) = innovation(&moved, &plot.z, &plot.r) else { continue };
-                if inn.d2 > self.gate_d2 {
-                    continue;
-                }
+                let Some(ll) = imm_gate(self.imm.n_models(), &sc.gate_pred[col], lead, &plot.z, &plot.r, self.gate_d2) else { continue };
                 if t.status.is_firm() {
                     sc.near_firm[row] = true;
                 }
                 // Cost: minus the log-likelihood ratio of "this plot is
                 // this track's" against "the track missed and the plot is
                 // clutter or a new vessel".
-                let cost = -(pd.ln() + inn.log_likelihood() - miss_ln - beta.ln());
+                let cost = -(pd.ln() + ll - miss_ln - beta.ln());
                 sc.pairs.push((row as u32, col as u32, cost));
             }
         }
@@ -505,6 +582,11 @@ impl Engine {
         sc.col_alone.clear();
         sc.col_alone.resize(sc.col_track.len(), 0.0);
         self.assigner.solve(&sc.row_alone, &sc.col_alone, &sc.pairs, &mut sc.row_to_col);
+        sc.col_taken.clear();
+        sc.col_taken.resize(sc.col_track.len(), false);
+        for c in sc.row_to_col.iter().flatten() {
+            sc.col_taken[*c as usize] = true;
+        }
         for (row, plot) in batch.plots.iter().enumerate() {
             let assigned = sc.row_to_col.get(row).copied().flatten();
             let done = match assigned {
@@ -519,9 +601,38 @@ impl Engine {
                 None => false,
             };
             if !done && !sc.near_firm[row] {
+                // Second chance before a new track: a coasting track (it
+                // missed its last look) left without a plot in this batch
+                // takes a plot inside its manoeuvre gate (twice the
+                // gate distance), so a vessel that turns harder than its
+                // filter foresaw keeps its number (common practice).
+                let lead = plot.det.time.secs_since(batch.first);
+                let mut best: Option<(f64, usize)> = None;
+                for (col, &idx) in sc.col_track.iter().enumerate() {
+                    let t = &self.tracks[idx as usize];
+                    if t.status != TrackStatus::Coasting || sc.col_taken.get(col).copied().unwrap_or(false) {
+                        continue;
+                    }
+                    if t.last_hit(sensor).is_some_and(|h| plot.det.time.secs_since(h) < min_gap) {
+                        continue;
+                    }
+                    if let Some(ll) = imm_gate(self.imm.n_models(), &sc.gate_pred[col], lead, &plot.z, &plot.r, SECOND_CHANCE_SCALE * self.gate_d2) {
+                        if best.is_none_or(|(b, _)| ll > b) {
+                            best = Some((ll, col));
+                        }
+                    }
+                }
+                if let Some((_, col)) = best {
+                    sc.col_taken[col] = true;
+                    let idx = sc.col_track[col];
+                    if self.update_track(idx, &plot.z, &plot.r, plot.det.time, sensor, out) {
+                        self.stats.plots_associated += 1;
+                        continue;
+                    }
+                }
                 let idx = self.new_track(&plot.z, &plot.r, plot.det.time, sensor);
                 let t = &self.tracks[idx as usize];
-                let g = self.imm.combine(&t.state);
+                let g = t.est;
                 out.push(self.record_of(t, plot.det.time, &g, Some(sensor)));
             }
         }
@@ -550,7 +661,7 @@ impl Engine {
                 continue; // hit already counted in this scan
             }
             let dt = s.time.secs_since(t.time).max(0.0);
-            let g = self.imm.combine(&t.state);
+            let g = t.est;
             let at = Vector2::new(g.x[0] + g.x[2] * dt, g.x[1] + g.x[3] * dt);
             if !self.models[sensor].covers(&at, s.sector_deg) {
                 continue;
@@ -564,7 +675,7 @@ impl Engine {
             }
         }
         self.sensor_state[sensor].last_scan_end = Some(s.time);
-        if ended {
+        if ended || self.pending_compact {
             self.compact();
         }
     }
@@ -601,7 +712,7 @@ impl Engine {
             }
             let silence = at.secs_since(t.time);
             let limit = if t.identity.is_some() { self.identified_silence_s } else { self.max_silence_s };
-            let g = self.imm.combine(&t.state);
+            let g = t.est;
             let dt = silence.max(0.0);
             let at_pos = Vector2::new(g.x[0] + g.x[2] * dt, g.x[1] + g.x[3] * dt);
             if silence > limit {
@@ -623,7 +734,7 @@ impl Engine {
             // the grown position uncertainty and the widest plot error.
             let horizon = dt + 1.0;
             let speed = g.x[2].hypot(g.x[3]) + 3.0 * (g.p[(2, 2)] + g.p[(3, 3)]).sqrt();
-            let pos_var = g.p[(0, 0)] + g.p[(1, 1)] + horizon * horizon * (g.p[(2, 2)] + g.p[(3, 3)]) + 300.0 * 300.0;
+            let pos_var = g.p[(0, 0)] + g.p[(1, 1)] + horizon * horizon * (g.p[(2, 2)] + g.p[(3, 3)]) + self.max_plot_var;
             let reach = speed * horizon + (self.gate_d2 * pos_var).sqrt();
             let wide = reach > CELL_M;
             self.tracks[i].wide = wide;
@@ -631,13 +742,14 @@ impl Engine {
                 self.wide.push(i as u32);
             }
         }
-        if ended {
+        if ended || self.pending_compact {
             self.compact();
         }
     }
 
     /// Drops ended tracks and refiles the rest.
     fn compact(&mut self) {
+        self.pending_compact = false;
         let before = self.tracks.len();
         self.tracks.retain(|t| t.status != TrackStatus::Ended);
         self.stats.tracks_ended += (before - self.tracks.len()) as u64;

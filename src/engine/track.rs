@@ -14,6 +14,7 @@
 //! - confirmed or coasting → ended: fewer than `end_hits` hits in the last
 //!   `end_looks` looks.
 
+use super::filter::Gaussian;
 use super::imm::ImmState;
 use crate::feed::{SensorId, TrackStatus};
 use crate::time::Timestamp;
@@ -30,6 +31,9 @@ pub struct Track {
     pub status: TrackStatus,
     /// Filter state at `time`.
     pub state: ImmState,
+    /// The state's combined (moment-matched) estimate, kept beside it
+    /// because gating, coverage and timeout checks read it often.
+    pub est: Gaussian,
     pub time: Timestamp,
     pub born: Timestamp,
     /// Look history, newest in bit 0; `n_looks` looks so far.
@@ -75,13 +79,14 @@ fn hits_in_last(looks: u32, n: u32) -> u32 {
 }
 
 impl Track {
-    pub fn new(number: u64, state: ImmState, time: Timestamp, sensor: SensorId) -> Self {
+    pub fn new(number: u64, state: ImmState, est: Gaussian, time: Timestamp, sensor: SensorId) -> Self {
         let mut recent = [(NO_SENSOR, Timestamp::default()); RECENT_SENSORS];
         recent[0] = (sensor, time);
         Track {
             number,
             status: TrackStatus::Tentative,
             state,
+            est,
             time,
             born: time,
             looks: 0,
@@ -156,13 +161,12 @@ impl Track {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::engine::filter::Gaussian;
     use crate::engine::imm::MAX_MODELS;
 
     fn track() -> Track {
         let g = Gaussian { x: Default::default(), p: Default::default() };
         let state = ImmState { comps: [g; MAX_MODELS], mu: [1.0, 0.0, 0.0] };
-        Track::new(1, state, Timestamp::default(), 0)
+        Track::new(1, state, g, Timestamp::default(), 0)
     }
 
     const RULES: Lifecycle = Lifecycle { confirm_hits: 3, confirm_looks: 4, end_hits: 1, end_looks: 5 };

@@ -2,7 +2,8 @@
 //! (target reports) and scan ends (start of update cycle).
 
 use super::uap::UAP_010;
-use super::{Amplitude, AsterixDecoder, AsterixItem, AsterixRejectReason as R, Plot, Reference, Service, ServiceMessage, Walked, u16_at, u24, walk};
+use super::{Amplitude, AsterixDecoder, AsterixItem, AsterixRejectReason as R, Plot, Reference, Sink, Service, ServiceMessage, Walked, u16_at, u24, walk};
+use crate::feed::SensorId;
 use crate::feed::{Detection, ScanEnd};
 
 #[derive(Default)]
@@ -16,7 +17,7 @@ struct Fields<'a> {
     amplitude: Option<u8>,
 }
 
-pub(super) fn record(dec: &mut AsterixDecoder, rec: &[u8], reference: Reference) -> Walked {
+pub(super) fn record(dec: &mut AsterixDecoder, rec: &[u8], reference: Reference, sink: &mut Sink<'_>) -> Walked {
     let mut f = Fields::default();
     let walked = walk(UAP_010, rec, |i, b| match i {
         0 => f.src = Some([b[0], b[1]]),
@@ -28,13 +29,15 @@ pub(super) fn record(dec: &mut AsterixDecoder, rec: &[u8], reference: Reference)
         23 => f.amplitude = Some(b[0]),
         _ => {}
     });
-    let sensor = dec.lookup(f.src).ok();
+    let looked = dec.lookup(f.src);
+    let sensor = looked.ok();
     let len = walked.map_err(|r| (r, sensor))?;
-    Ok((len, sensor, outcome(dec, &f, reference)))
+    let outcome = looked.and_then(|id| outcome(dec, id, &f, reference));
+    dec.emit(sink, 10, sensor, outcome);
+    Ok(len)
 }
 
-fn outcome(dec: &mut AsterixDecoder, f: &Fields<'_>, reference: Reference) -> super::RecordOutcome {
-    let sensor = dec.lookup(f.src)?;
+fn outcome(dec: &mut AsterixDecoder, sensor: SensorId, f: &Fields<'_>, reference: Reference) -> super::RecordOutcome {
     match f.message_type.ok_or(R::MissingMessageType)? {
         1 => plot(dec, sensor, f, reference),
         2 => {
@@ -66,7 +69,7 @@ fn outcome(dec: &mut AsterixDecoder, f: &Fields<'_>, reference: Reference) -> su
     }
 }
 
-fn plot(dec: &mut AsterixDecoder, sensor: crate::feed::SensorId, f: &Fields<'_>, reference: Reference) -> super::RecordOutcome {
+fn plot(dec: &mut AsterixDecoder, sensor: SensorId, f: &Fields<'_>, reference: Reference) -> super::RecordOutcome {
     // I010/020: TYP bits 8-6 of the first octet; SIM (bit 8) and TST
     // (bit 7) of the first extension.
     let (report_type, simulated) = match f.descriptor {

@@ -2,7 +2,8 @@
 //! crossings, which close sectors (`scan_end`).
 
 use super::uap::UAP_034;
-use super::{AsterixDecoder, AsterixItem, AsterixRejectReason as R, Reference, Service, ServiceMessage, Walked, u16_at, u24, walk};
+use super::{AsterixDecoder, AsterixItem, AsterixRejectReason as R, Reference, Sink, Service, ServiceMessage, Walked, u16_at, u24, walk};
+use crate::feed::SensorId;
 use crate::feed::ScanEnd;
 
 #[derive(Default)]
@@ -14,7 +15,7 @@ struct Fields {
     period: Option<u16>,
 }
 
-pub(super) fn record(dec: &mut AsterixDecoder, rec: &[u8], reference: Reference) -> Walked {
+pub(super) fn record(dec: &mut AsterixDecoder, rec: &[u8], reference: Reference, sink: &mut Sink<'_>) -> Walked {
     let mut f = Fields::default();
     let walked = walk(UAP_034, rec, |i, b| match i {
         0 => f.src = Some([b[0], b[1]]),
@@ -24,13 +25,15 @@ pub(super) fn record(dec: &mut AsterixDecoder, rec: &[u8], reference: Reference)
         4 => f.period = Some(u16_at(b, 0)),
         _ => {}
     });
-    let sensor = dec.lookup(f.src).ok();
+    let looked = dec.lookup(f.src);
+    let sensor = looked.ok();
     let len = walked.map_err(|r| (r, sensor))?;
-    Ok((len, sensor, service(dec, &f, reference)))
+    let outcome = looked.and_then(|id| service(dec, id, &f, reference));
+    dec.emit(sink, 34, sensor, outcome);
+    Ok(len)
 }
 
-fn service(dec: &mut AsterixDecoder, f: &Fields, reference: Reference) -> super::RecordOutcome {
-    let sensor = dec.lookup(f.src)?;
+fn service(dec: &mut AsterixDecoder, sensor: SensorId, f: &Fields, reference: Reference) -> super::RecordOutcome {
     let message_type = f.message_type.ok_or(R::MissingMessageType)?;
     let rotation_period_s = f.period.map(|p| p as f64 / 128.0);
     let (message, edge) = match message_type {

@@ -1,7 +1,8 @@
 //! Category 048 (ed. 1.31) target reports → plots.
 
 use super::uap::{self, UAP_048};
-use super::{Amplitude, AsterixDecoder, AsterixItem, AsterixRejectReason as R, Doppler, Plot, Reference, Walked, u16_at, u24, walk};
+use super::{Amplitude, AsterixDecoder, AsterixItem, AsterixRejectReason as R, Doppler, Plot, Reference, Sink, Walked, u16_at, u24, walk};
+use crate::feed::SensorId;
 use crate::feed::Detection;
 
 /// The items skerry reads from a category 048 record.
@@ -15,7 +16,7 @@ struct Fields<'a> {
     doppler: Option<&'a [u8]>,
 }
 
-pub(super) fn record(dec: &mut AsterixDecoder, rec: &[u8], reference: Reference) -> Walked {
+pub(super) fn record(dec: &mut AsterixDecoder, rec: &[u8], reference: Reference, sink: &mut Sink<'_>) -> Walked {
     let mut f = Fields::default();
     let walked = walk(UAP_048, rec, |i, b| match i {
         0 => f.src = Some([b[0], b[1]]),
@@ -26,13 +27,15 @@ pub(super) fn record(dec: &mut AsterixDecoder, rec: &[u8], reference: Reference)
         19 => f.doppler = Some(b),
         _ => {}
     });
-    let sensor = dec.lookup(f.src).ok();
+    let looked = dec.lookup(f.src);
+    let sensor = looked.ok();
     let len = walked.map_err(|r| (r, sensor))?;
-    Ok((len, sensor, plot(dec, &f, reference)))
+    let outcome = looked.and_then(|id| plot(dec, id, &f, reference));
+    dec.emit(sink, 48, sensor, outcome);
+    Ok(len)
 }
 
-fn plot(dec: &mut AsterixDecoder, f: &Fields<'_>, reference: Reference) -> super::RecordOutcome {
-    let sensor = dec.lookup(f.src)?;
+fn plot(dec: &mut AsterixDecoder, sensor: SensorId, f: &Fields<'_>, reference: Reference) -> super::RecordOutcome {
     // I048/020: TYP bits 8-6 and SIM bit 5 of the first octet; TST is bit
     // 8 of the first extension.
     let (report_type, simulated) = match f.descriptor {

@@ -31,6 +31,26 @@
 //! Scan counting is per sensor and kept here: a category 034 north marker
 //! or a category 010 start of update cycle ends scan *n* (its `scan_end`
 //! carries *n*) and later plots carry *n* + 1.
+//!
+//! Sectors: a sector crossing at edge *b* closes `[a, b]`, *a* being the
+//! previous edge (a north marker is the edge 0°). A radar that sends no
+//! sector crossings gets a full-circle `scan_end` at each north marker.
+//! The first crossing after start-up (no previous edge) and a repeated
+//! edge close nothing: their [`Service`] has `scan_end: None`.
+//!
+//! # Wiring (for the daemon and the offline commands)
+//!
+//! - Build the table once: `SourceTable::from_config(&cfg)?` (radar
+//!   sensors with both `asterix_sac` and `asterix_sic`; sensor ids are
+//!   configuration indices, as in `Config::sensor_table`). Its errors
+//!   (duplicate pair, only one of the two keys, a transponder with a
+//!   source) belong in configuration validation.
+//! - Live: `decoder.decode(datagram, receive_time, &mut sink)`; offline
+//!   (`--asterix FILE --date D`): `decoder.decode_recording(bytes, D, &mut sink)`.
+//! - In the sink: `item.record()` is the feed record to screen and track;
+//!   `Plot::{amplitude, doppler, run_length_deg}` and
+//!   `Service::rotation_period_s` are extras for health and metrics;
+//!   rejects count under `AsterixReject::reason.key()`.
 
 mod cat010;
 mod cat034;
@@ -374,7 +394,7 @@ pub struct AsterixDecoder {
     follow: Option<Timestamp>,
 }
 
-type Sink<'s> = dyn FnMut(Result<AsterixItem, AsterixReject>) + 's;
+pub(crate) type Sink<'s> = dyn FnMut(Result<AsterixItem, AsterixReject>) + 's;
 
 /// A record-level outcome: the item, or why this one record is dropped.
 pub(crate) type RecordOutcome = Result<AsterixItem, AsterixRejectReason>;
@@ -451,34 +471,37 @@ impl AsterixDecoder {
         while pos < body.len() {
             let rec = &body[pos..];
             let step = match cat {
-                48 => cat048::record(self, rec, reference),
-                34 => cat034::record(self, rec, reference),
-                _ => cat010::record(self, rec, reference),
+                48 => cat048::record(self, rec, reference, sink),
+                34 => cat034::record(self, rec, reference, sink),
+                _ => cat010::record(self, rec, reference, sink),
             };
             match step {
-                Ok((len, sensor, outcome)) => {
-                    pos += len;
-                    match outcome {
-                        Ok(item) => {
-                            match &item {
-                                AsterixItem::Plot(_) => self.counts.plots += 1,
-                                AsterixItem::Service(s) => {
-                                    self.counts.services += 1;
-                                    if s.scan_end.is_some() {
-                                        self.counts.scan_ends += 1;
-                                    }
-                                }
-                            }
-                            sink(Ok(item));
-                        }
-                        Err(reason) => self.reject(sink, reason, cat, sensor),
-                    }
-                }
+                Ok(len) => pos += len,
                 Err((reason, sensor)) => {
                     self.reject(sink, reason, cat, sensor);
                     return;
                 }
             }
+        }
+    }
+
+    /// Hands a record's outcome to the sink, counting it.
+    #[inline(always)]
+    pub(crate) fn emit(&mut self, sink: &mut Sink<'_>, category: u8, sensor: Option<SensorId>, outcome: RecordOutcome) {
+        match outcome {
+            Ok(item) => {
+                match &item {
+                    AsterixItem::Plot(_) => self.counts.plots += 1,
+                    AsterixItem::Service(s) => {
+                        self.counts.services += 1;
+                        if s.scan_end.is_some() {
+                            self.counts.scan_ends += 1;
+                        }
+                    }
+                }
+                sink(Ok(item));
+            }
+            Err(reason) => self.reject(sink, reason, category, sensor),
         }
     }
 
@@ -577,9 +600,10 @@ pub fn nearest_day(tod: u32, reference: Timestamp) -> Timestamp {
     Timestamp::from_unix_nanos(t)
 }
 
-/// A record walked by its UAP: the octets it spans, or the framing fault
-/// with the sensor if the source was already read.
-pub(crate) type Walked = Result<(usize, Option<SensorId>, RecordOutcome), (AsterixRejectReason, Option<SensorId>)>;
+/// A record walked by its UAP (its outcome already handed to the sink):
+/// the octets it spans, or the framing fault with the sensor if the
+/// source was already read.
+pub(crate) type Walked = Result<usize, (AsterixRejectReason, Option<SensorId>)>;
 
 /// Walks one record: FSPEC, then each present item in UAP order, handing
 /// `(frn_index, item_octets)` to `f`. Returns the record's length.

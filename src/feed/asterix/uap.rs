@@ -134,6 +134,13 @@ pub(crate) const UAP_010: &[Item] = &[
 /// `unterminated`.
 #[inline]
 pub(crate) fn read_bitmap(buf: &[u8], table_len: usize, unterminated: Reason) -> Result<(u64, usize), Reason> {
+    // One octet, the usual case for compound items.
+    if let Some(&o) = buf.first()
+        && o & 1 == 0
+    {
+        let flags = ((o >> 1).reverse_bits() >> 1) as u64;
+        return if flags >> table_len.min(63) != 0 { Err(Reason::UndefinedItem) } else { Ok((flags, 1)) };
+    }
     let mut flags = 0u64;
     let mut i = 0usize;
     loop {
@@ -164,22 +171,26 @@ pub(crate) fn read_bitmap(buf: &[u8], table_len: usize, unterminated: Reason) ->
 
 /// The length in octets of an item of kind `item` that starts at `buf[0]`.
 /// The whole item must lie inside `buf`.
-#[inline]
+#[inline(always)]
 pub(crate) fn item_len(item: Item, buf: &[u8]) -> Result<usize, Reason> {
+    match item {
+        // The common case, kept free of calls.
+        Fixed(n) if (n as usize) <= buf.len() => Ok(n as usize),
+        Compound(subs) => compound_len(subs, buf),
+        other => simple_len(other, buf),
+    }
+}
+
+/// Length of an item that is not compound (compound items of the three
+/// categories hold only fixed and repetitive sub-fields).
+#[inline]
+fn simple_len(item: Item, buf: &[u8]) -> Result<usize, Reason> {
     let len = match item {
         Fixed(n) => n as usize,
-        Extended => {
-            let mut n = 0;
-            loop {
-                let Some(&o) = buf.get(n) else {
-                    return Err(Reason::TruncatedItem);
-                };
-                n += 1;
-                if o & 1 == 0 {
-                    break n;
-                }
-            }
-        }
+        Extended => match buf.iter().position(|o| o & 1 == 0) {
+            Some(i) => i + 1,
+            None => return Err(Reason::TruncatedItem),
+        },
         Repetitive(size) => {
             let Some(&rep) = buf.first() else {
                 return Err(Reason::TruncatedItem);
@@ -196,21 +207,7 @@ pub(crate) fn item_len(item: Item, buf: &[u8]) -> Result<usize, Reason> {
             }
             n as usize
         }
-        Compound(subs) => {
-            let (mut flags, mut n) = read_bitmap(buf, subs.len(), Reason::TruncatedItem)?;
-            while flags != 0 {
-                let i = flags.trailing_zeros() as usize;
-                flags &= flags - 1;
-                let sub = subs[i];
-                if sub == Undefined {
-                    return Err(Reason::UndefinedItem);
-                }
-                let rest = buf.get(n..).ok_or(Reason::TruncatedItem)?;
-                n += item_len(sub, rest)?;
-            }
-            n
-        }
-        Undefined => return Err(Reason::UndefinedItem),
+        Compound(_) | Undefined => return Err(Reason::UndefinedItem),
     };
     if len > buf.len() {
         return Err(Reason::TruncatedItem);
@@ -218,8 +215,21 @@ pub(crate) fn item_len(item: Item, buf: &[u8]) -> Result<usize, Reason> {
     Ok(len)
 }
 
+#[inline]
+fn compound_len(subs: &'static [Item], buf: &[u8]) -> Result<usize, Reason> {
+    let (mut flags, mut n) = read_bitmap(buf, subs.len(), Reason::TruncatedItem)?;
+    while flags != 0 {
+        let i = flags.trailing_zeros() as usize;
+        flags &= flags - 1;
+        // n <= buf.len() holds: read_bitmap and simple_len stay inside buf.
+        n += simple_len(subs[i], &buf[n..])?;
+    }
+    Ok(n)
+}
+
 /// The sub-fields of a well-formed compound item (already measured by
 /// [`item_len`]): calls `f(index, bytes)` for each present sub-field.
+#[inline]
 pub(crate) fn compound_fields(subs: &'static [Item], item: &[u8], mut f: impl FnMut(usize, &[u8])) -> Result<(), Reason> {
     let (mut flags, mut n) = read_bitmap(item, subs.len(), Reason::TruncatedItem)?;
     while flags != 0 {

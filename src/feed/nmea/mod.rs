@@ -31,6 +31,21 @@
 //! - Identity is the MMSI as 9 digits. The `Arc<str>` is made once per
 //!   vessel and kept in the table, so decoding a report does not allocate
 //!   once the vessel is known.
+//!
+//! # Wiring (for the daemon and the offline commands)
+//!
+//! - One [`AisDecoder`] per transponder sensor (its `nmea_udp` input or
+//!   its `--nmea SENSOR=FILE` log), made with that sensor's id.
+//! - Live: `decode_datagram(datagram, Some(receive_time), &mut sink)`;
+//!   a log: `decode_line(line, None)` (lines need a `c:` tag block), or
+//!   pass the previous line's time if the log has none.
+//! - `AisOutcome::record()` is the `report` to screen and track. The
+//!   hull-centre shift, antenna position, navigational status and UTC
+//!   second come with [`AisPosition`]; [`AisDecoder::vessel`] gives the
+//!   name, ship type and dimensions for display or identity checks.
+//!   [`AisOutcome::OwnShip`] is the receiver's own ship (e.g. for a
+//!   shipborne site's own position), never a track update.
+//! - Counts: [`AisDecoder::counts`], reject keys from [`AisRejectReason::key`].
 
 mod bits;
 mod fragments;
