@@ -1,16 +1,20 @@
 //! JPDA association of one batch (`tracking.association = "jpda"`).
 //!
 //! Gating is that of the GNN path: each plot of the batch is tested
-//! against the tracks near it with each track's combined (moment-matched)
-//! IMM prediction at the batch's first plot time, moved to the plot's own
-//! time at the predicted velocity. A gated pair has the weight
-//! `Pd · N(z; ẑ, S) / λ` and each track the no-plot weight `1 − Pd·Pg`
-//! (parametric Poisson clutter, Bar-Shalom & Fortmann 1988, §9.3), where
-//! λ is the density of plots that are no existing track's: the sensor's
-//! clutter density (`clutter_per_scan` over its coverage disc) plus the
-//! density of new vessels (`new_track_density_per_km2`), the same split
-//! the GNN costs use. Pd is the sensor's `detection_probability`, Pg the
-//! configured `gate_probability`.
+//! against the tracks near it with each track's IMM prediction at the
+//! batch's first plot time, moved to the plot's own time at the predicted
+//! velocity; a plot inside any model's gate is in the track's gate (the
+//! widest model decides at the onset of a manoeuvre). A gated pair has
+//! the weight `Pd · N(z; ẑ, S) / λ` from the track's combined
+//! (moment-matched) prediction and each track the no-plot weight
+//! `1 − Pd·Pg` (parametric Poisson clutter, Bar-Shalom & Fortmann 1988,
+//! §9.3), where λ is the density of plots that are no existing track's:
+//! the sensor's clutter density (`clutter_per_scan` over its coverage
+//! disc) plus the density of new vessels (`new_track_density_per_km2`),
+//! the same split the GNN costs use. Pd is the sensor's
+//! `detection_probability`, Pg the configured `gate_probability`. A cheap
+//! conservative bound ([`Reach`]) skips the IMM prediction of tracks that
+//! no plot of the batch can reach.
 //!
 //! The tracks and plots linked by gated pairs fall into independent
 //! clusters. Each cluster's marginal association probabilities come from
@@ -39,7 +43,12 @@
 //! - *New tracks.* A plot whose total association probability to existing
 //!   tracks is below 0.5, and that is not inside the gate of a firm track,
 //!   starts a tentative track (as with GNN: a plot in a firm track's gate
-//!   is more likely a split plot or multipath echo — common practice).
+//!   is more likely a split plot or multipath echo — common practice) —
+//!   unless a coasting track with no plot in its gate in this batch takes
+//!   it through its manoeuvre gate (the GNN path's second chance).
+//! - *Lifecycle.* As with GNN: M-of-N confirmation, misses counted at the
+//!   sensor's `scan_end`, a tentative track faster than
+//!   `tracking.max_speed_kn` ended.
 
 use super::imm::ImmState;
 use super::jpda::Method;
@@ -167,11 +176,13 @@ pub(super) struct Jpda {
     pub(super) pregate: bool,
     cand: Vec<u32>,
     col_track: Vec<u32>,
-    gate_pred: Vec<Gaussian>,
+    gate_pred: Vec<ImmState>,
+    gate_comb: Vec<Gaussian>,
     /// Whether `gate_pred[col]` has been computed (it is computed only for
     /// a track some plot may gate with).
     predicted: Vec<bool>,
     reach: Vec<Reach>,
+    col_taken: Vec<bool>,
     pairs: Vec<Pair>,
     sorted: Vec<Pair>,
     col_start: Vec<u32>,
@@ -226,6 +237,17 @@ impl Engine {
         self.jpda.counters
     }
 
+    /// The IMM prediction of column `col`'s track at the batch start, and
+    /// its combined Gaussian.
+    fn gate_prediction(&self, sc: &mut Jpda, col: usize, at: Timestamp) {
+        let t = &self.tracks[sc.col_track[col] as usize];
+        let dt = at.secs_since(t.time).max(0.0);
+        let pred = if dt > 0.0 { self.imm.predict(&t.state, dt) } else { t.state };
+        sc.gate_comb[col] = self.imm.combine(&pred);
+        sc.gate_pred[col] = pred;
+        sc.predicted[col] = true;
+    }
+
     pub(super) fn close_batch_jpda(&mut self, out: &mut Vec<TrackRecord>) {
         let batch = std::mem::take(&mut self.batch);
         self.batch_serial += 1;
@@ -248,6 +270,7 @@ impl Engine {
         let n_rows = batch.plots.len();
         sc.col_track.clear();
         sc.gate_pred.clear();
+        sc.gate_comb.clear();
         sc.predicted.clear();
         sc.reach.clear();
         sc.pairs.clear();
@@ -270,7 +293,8 @@ impl Engine {
             // contents follow from the input alone, so the column order is
             // deterministic; a track is in one cell or in `wide`, never
             // twice.
-            for &idx in &sc.cand {
+            for ci in 0..sc.cand.len() {
+                let idx = sc.cand[ci];
                 let t = &mut self.tracks[idx as usize];
                 if t.status == TrackStatus::Ended {
                     continue;
@@ -282,7 +306,8 @@ impl Engine {
                     t.col = sc.col_track.len() as u32;
                     let dt = batch.first.secs_since(t.time).max(0.0);
                     sc.col_track.push(idx);
-                    sc.gate_pred.push(Gaussian { x: StateVec::zeros(), p: StateCov::zeros() });
+                    sc.gate_pred.push(t.state);
+                    sc.gate_comb.push(t.est);
                     sc.predicted.push(false);
                     sc.reach.push(Reach::of(&t.state, self.imm.models(), dt));
                 }
@@ -296,20 +321,19 @@ impl Engine {
                     continue;
                 }
                 if !sc.predicted[col as usize] {
-                    // The gating prediction at the batch start.
-                    let dt = batch.first.secs_since(t.time).max(0.0);
-                    let pred = if dt > 0.0 { self.imm.predict(&t.state, dt) } else { t.state };
-                    sc.gate_pred[col as usize] = self.imm.combine(&pred);
-                    sc.predicted[col as usize] = true;
+                    self.gate_prediction(&mut sc, col as usize, batch.first);
                 }
-                let g = &sc.gate_pred[col as usize];
+                // The gate: inside any model's gate, as with GNN (the widest
+                // model decides at the onset of a manoeuvre). The weight:
+                // the combined prediction's likelihood.
+                if imm_gate(self.imm.n_models(), &sc.gate_pred[col as usize], lead, &plot.z, &plot.r, self.gate_d2).is_none() {
+                    continue;
+                }
+                let g = &sc.gate_comb[col as usize];
                 let mut moved = *g;
                 moved.x[0] += g.x[2] * lead;
                 moved.x[1] += g.x[3] * lead;
                 let Some(inn) = innovation(&moved, &plot.z, &plot.r) else { continue };
-                if inn.d2 > self.gate_d2 {
-                    continue;
-                }
                 if t.status.is_firm() {
                     sc.near_firm[row] = true;
                 }
@@ -497,6 +521,11 @@ impl Engine {
         }
 
         // New tracks from plots no track is likely to hold.
+        sc.col_taken.clear();
+        sc.col_taken.resize(n_cols, false);
+        for p in &sc.pairs {
+            sc.col_taken[p.col as usize] = true;
+        }
         for (row, plot) in batch.plots.iter().enumerate() {
             if sc.plot_total[row] >= 0.5 {
                 self.stats.plots_associated += 1;
@@ -504,6 +533,39 @@ impl Engine {
             }
             if sc.near_firm[row] {
                 continue;
+            }
+            // Second chance, as with GNN: a coasting track with no plot in
+            // its gate in this batch takes the most likely such plot inside
+            // its manoeuvre gate (SECOND_CHANCE_SCALE × the gate's d²), by
+            // a plain IMM update, so that a vessel turning harder than its
+            // filter foresaw keeps its number (common practice).
+            let lead = plot.det.time.secs_since(batch.first);
+            let wide_d2 = SECOND_CHANCE_SCALE * self.gate_d2;
+            let mut best: Option<(f64, usize)> = None;
+            for col in 0..n_cols {
+                let idx = sc.col_track[col];
+                let t = &self.tracks[idx as usize];
+                if t.status != TrackStatus::Coasting || sc.col_taken[col] || t.last_hit(sensor).is_some_and(|h| plot.det.time.secs_since(h) < min_gap) {
+                    continue;
+                }
+                if sc.pregate && !sc.reach[col].may_gate(&plot.z, &plot.r, lead, wide_d2) {
+                    continue;
+                }
+                if !sc.predicted[col] {
+                    self.gate_prediction(&mut sc, col, batch.first);
+                }
+                if let Some(ll) = imm_gate(self.imm.n_models(), &sc.gate_pred[col], lead, &plot.z, &plot.r, wide_d2) {
+                    if best.is_none_or(|(b, _)| ll > b) {
+                        best = Some((ll, col));
+                    }
+                }
+            }
+            if let Some((_, col)) = best {
+                sc.col_taken[col] = true;
+                if self.update_track(sc.col_track[col], &plot.z, &plot.r, plot.det.time, sensor, out) {
+                    self.stats.plots_associated += 1;
+                    continue;
+                }
             }
             let idx = self.new_track(&plot.z, &plot.r, plot.det.time, sensor);
             let t = &self.tracks[idx as usize];
@@ -525,8 +587,9 @@ mod tests {
 
     /// The reach bound against its definition: for random IMM states
     /// (spread components, turning, long silences) and plots, whenever
-    /// the exact gate test of the combined prediction passes, the bound
-    /// must let the pair through.
+    /// the exact gate test passes (the combined prediction's gate, or any
+    /// model's gate, normal or manoeuvre), the bound must let the pair
+    /// through.
     #[test]
     fn reach_never_drops_a_gated_pair() {
         let imm = Imm::new(
@@ -540,7 +603,7 @@ mod tests {
         .expect("imm");
         let gate_d2 = -2.0 * (1.0f64 - 0.999).ln();
         let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(31);
-        let (mut gated, mut checked) = (0, 0);
+        let (mut gated, mut checked, mut model_gated) = (0, 0, 0);
         for _ in 0..3000 {
             let mut s = imm.init(Gaussian { x: StateVec::zeros(), p: StateCov::identity() }, None);
             let base = StateVec::new(rng.random_range(-500.0..500.0), rng.random_range(-500.0..500.0), rng.random_range(-10.0..10.0), rng.random_range(-10.0..10.0), 0.0);
@@ -561,7 +624,8 @@ mod tests {
             s.mu = mu.map(|m| m / total);
             let dt = if rng.random_bool(0.2) { rng.random_range(0.0..40.0) } else { rng.random_range(0.0..3.0) };
             let reach = Reach::of(&s, imm.models(), dt);
-            let g = imm.combine(&imm.predict(&s, dt));
+            let pred = imm.predict(&s, dt);
+            let g = imm.combine(&pred);
             for _ in 0..20 {
                 let lead = rng.random_range(0.0..0.2);
                 let sigma = rng.random_range(5.0..40.0);
@@ -578,8 +642,15 @@ mod tests {
                     gated += 1;
                     assert!(reach.may_gate(&z, &r, lead, gate_d2), "dropped a gated pair: d2 {}", inn.d2);
                 }
+                // Any model's gate, normal and manoeuvre (the engine's gates).
+                for scale in [1.0, SECOND_CHANCE_SCALE] {
+                    if imm_gate(3, &pred, lead, &z, &r, scale * gate_d2).is_some() {
+                        model_gated += 1;
+                        assert!(reach.may_gate(&z, &r, lead, scale * gate_d2), "dropped a pair in a model's gate ×{scale}");
+                    }
+                }
             }
         }
-        assert!(gated > 1000 && checked > gated, "{gated} of {checked}");
+        assert!(gated > 1000 && model_gated > gated && checked > gated, "{gated}, {model_gated} of {checked}");
     }
 }
