@@ -273,7 +273,7 @@ impl Tally {
     }
     pub fn line(&self, name: &str) -> String {
         format!(
-            "{name}: kept both tracks in {}/{} runs ({:.0}%), swaps in {}, mean separation deficit after the crossing {:.1} m, merged instants {:.1}%",
+            "{name}: kept both tracks in {}/{} runs ({:.0}%), swaps in {}, separation deficit (vessels 20–150 m apart) {:.1} m, merged instants {:.1}%",
             self.kept,
             self.runs,
             100.0 * self.kept_rate(),
