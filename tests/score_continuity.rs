@@ -46,6 +46,7 @@ fn track(no: u64, status: TrackStatus, t: f64, en: (f64, f64), vel: (f64, f64)) 
         pos_cov_m2: [[1.0, 0.0], [0.0, 1.0]],
         sensors: vec![],
         identity: None,
+        identity_conflict: false,
     }
 }
 

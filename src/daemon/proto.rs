@@ -271,6 +271,8 @@ pub fn track_from_proto(t: &v1::TrackRecord) -> Result<TrackRecord, TrackConvert
         pos_cov_m2: c,
         sensors: t.sensors.iter().map(|s| Arc::from(s.as_str())).collect(),
         identity: t.identity.as_deref().map(Arc::from),
+        // Not carried by the protobuf record (version 1 has no field for it).
+        identity_conflict: false,
     })
 }
 

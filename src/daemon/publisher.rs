@@ -255,6 +255,7 @@ mod tests {
             pos_cov_m2: [[1.0, 0.0], [0.0, 1.0]],
             sensors: vec![],
             identity: None,
+            identity_conflict: false,
         }
     }
 

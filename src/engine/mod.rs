@@ -26,6 +26,11 @@
 //! it fell inside the gate of a firm track (a split plot or a multipath
 //! echo of a vessel already held: common practice).
 //!
+//! With `tracking.association = "jpda"` a batch is associated by joint
+//! probabilistic data association instead (jpda_batch.rs: clusters,
+//! JPDA* marginals, IMM-PDA updates); transponder reports are handled the
+//! same way in both modes (identity.rs).
+//!
 //! Track timeouts are checked on a one-second grid of feed time, so the
 //! result does not depend on when the daemon's clock ticks.
 
@@ -33,11 +38,15 @@ pub mod assign;
 pub mod filter;
 pub mod imm;
 pub mod jpda;
+mod identity;
+mod jpda_batch;
+pub mod jpda_cluster;
+pub mod pda;
 pub mod measure;
 pub mod sensors;
 pub mod track;
 
-use crate::config::{Config, MotionChoice};
+use crate::config::{Association, Config, MotionChoice};
 use crate::feed::tracks::speed_course;
 use crate::feed::{Detection, Record, Report, ScanEnd, SensorId, SensorKind, SensorTable, TrackRecord, TrackStatus};
 use crate::geo::{Geodetic, LocalFrame, radii_of_curvature};
@@ -165,6 +174,12 @@ pub struct Engine {
     stats: EngineStats,
     assigner: SparseAssigner,
     scratch: Scratch,
+    /// `tracking.association`: which `close_batch` runs.
+    association: Association,
+    /// JPDA settings and scratch (jpda_batch.rs).
+    jpda: jpda_batch::Jpda,
+    /// Candidate tracks of a transponder report (identity.rs).
+    report_cand: Vec<u32>,
 }
 
 /// Gates a plot against an IMM prediction made `lead` seconds before the
@@ -265,6 +280,9 @@ impl Engine {
             stats: EngineStats::default(),
             assigner: SparseAssigner::new(),
             scratch: Scratch::default(),
+            association: t.association,
+            jpda: jpda_batch::Jpda::new(t.jpda_max_events),
+            report_cand: Vec::new(),
         })
     }
 
@@ -384,6 +402,7 @@ impl Engine {
             pos_cov_m2: [[g.p[(0, 0)], g.p[(0, 1)]], [g.p[(1, 0)], g.p[(1, 1)]]],
             sensors: sensor.map(|s| vec![self.sensor_names[s as usize].clone()]).unwrap_or_default(),
             identity: t.identity.clone(),
+            identity_conflict: t.identity_conflict,
         }
     }
 
@@ -475,6 +494,10 @@ impl Engine {
     }
 
     fn close_batch(&mut self, out: &mut Vec<TrackRecord>) {
+        match self.association {
+            Association::Gnn => {}
+            Association::Jpda => return self.close_batch_jpda(out),
+        }
         let batch = std::mem::take(&mut self.batch);
         self.batch_serial += 1;
         self.stats.batches += 1;
@@ -742,75 +765,5 @@ impl Engine {
                 self.identities.insert(id.clone(), i as u32);
             }
         }
-    }
-
-    fn report(&mut self, r: &Report, out: &mut Vec<TrackRecord>) {
-        let model = &self.models[r.sensor as usize];
-        self.stats.reports += 1;
-        let sigma = model.position_sigma_m;
-        let z = self.site.geodetic_to_plane(Geodetic::new(r.lat_deg, r.lon_deg, 0.0));
-        let rcov = Matrix2::new(sigma * sigma, 0.0, 0.0, sigma * sigma);
-        if let Some(&idx) = self.identities.get(&r.id) {
-            let t = &self.tracks[idx as usize];
-            let dt = r.time.secs_since(t.time).max(0.0);
-            let g = t.est;
-            let at = Vector2::new(g.x[0] + g.x[2] * dt, g.x[1] + g.x[3] * dt);
-            if (at - z).norm() <= self.identity_gate_m {
-                self.update_track(idx, &z, &rcov, r.time, r.sensor, out);
-            } else {
-                self.stats.identity_conflicts += 1;
-            }
-            return;
-        }
-        // A new identity: the best-fitting track that holds none.
-        let (cx, cy) = cell_of(&z);
-        let mut best: Option<(f64, u32)> = None;
-        let mut cands: Vec<u32> = Vec::new();
-        for dx in -1..=1 {
-            for dy in -1..=1 {
-                if let Some(v) = self.grid.get(&(cx + dx, cy + dy)) {
-                    cands.extend(v.iter().copied());
-                }
-            }
-        }
-        cands.extend(self.wide.iter().copied());
-        cands.sort_unstable();
-        cands.dedup();
-        for idx in cands {
-            let t = &self.tracks[idx as usize];
-            if t.identity.is_some() || t.status == TrackStatus::Ended {
-                continue;
-            }
-            let dt = r.time.secs_since(t.time).max(0.0);
-            let g = self.imm.combine(&if dt > 0.0 { self.imm.predict(&t.state, dt) } else { t.state });
-            let Some(inn) = innovation(&g, &z, &rcov) else { continue };
-            if inn.d2 > self.gate_d2 {
-                continue;
-            }
-            let cost = inn.d2 + inn.ln_det_s;
-            if best.is_none_or(|(c, _)| cost < c) {
-                best = Some((cost, idx));
-            }
-        }
-        let idx = match best {
-            Some((_, idx)) => {
-                self.tracks[idx as usize].identity = Some(r.id.clone());
-                self.identities.insert(r.id.clone(), idx);
-                if !self.update_track(idx, &z, &rcov, r.time, r.sensor, out) {
-                    return;
-                }
-                idx
-            }
-            None => {
-                let idx = self.new_track(&z, &rcov, r.time, r.sensor);
-                self.tracks[idx as usize].identity = Some(r.id.clone());
-                self.identities.insert(r.id.clone(), idx);
-                let t = &self.tracks[idx as usize];
-                let g = t.est;
-                out.push(self.record_of(t, r.time, &g, Some(r.sensor)));
-                idx
-            }
-        };
-        let _ = idx;
     }
 }

@@ -42,6 +42,9 @@ pub struct Track {
     /// Latest hit time per sensor (sensor u16::MAX marks an empty slot).
     pub recent: [(SensorId, Timestamp); RECENT_SENSORS],
     pub identity: Option<Arc<str>>,
+    /// A report with this track's identity fell outside the identity gate
+    /// and no consistent report has come since.
+    pub identity_conflict: bool,
     /// Grid cell the track is filed under.
     pub cell: (i32, i32),
     /// Checked against every plot instead of through the grid.
@@ -90,6 +93,7 @@ impl Track {
             n_looks: 0,
             recent,
             identity: None,
+            identity_conflict: false,
             cell: (0, 0),
             wide: false,
             visit: 0,

@@ -51,6 +51,12 @@ pub struct TrackRecord {
     pub pos_cov_m2: [[f64; 2]; 2],
     pub sensors: Vec<Arc<str>>,
     pub identity: Option<Arc<str>>,
+    /// A transponder report with this track's identity was inconsistent
+    /// with the track (outside `tracking.identity_gate_m`). Optional: the
+    /// field is written only when true, so records without a conflict are
+    /// as before.
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub identity_conflict: bool,
 }
 
 /// Metres per second in one knot (1852 m per hour, by definition of the
@@ -171,6 +177,9 @@ impl TrackRecord {
             Some(id) => push_json_str(out, id),
             None => out.push_str("null"),
         }
+        if self.identity_conflict {
+            out.push_str(",\"identity_conflict\":true");
+        }
         out.push('}');
     }
 
@@ -267,6 +276,7 @@ mod tests {
             pos_cov_m2: [[100.0, 2.5], [2.5, 80.0]],
             sensors: vec!["north-mast".into()],
             identity: None,
+            identity_conflict: false,
         };
         let s = r.to_json();
         assert!(s.contains("\"east_m\":0.00,"), "{s}");
@@ -288,6 +298,11 @@ mod tests {
         assert_eq!(back.track, 12);
         assert_eq!(back.status, TrackStatus::Confirmed);
         assert_eq!(back.sensors, r.sensors);
+        assert!(!s.contains("identity_conflict"), "{s}");
+        let flagged = TrackRecord { identity_conflict: true, ..r.clone() };
+        let f = flagged.to_json();
+        assert_eq!(f, format!("{},\"identity_conflict\":true}}", &s[..s.len() - 1]));
+        assert!(TrackRecord::from_json(&f).unwrap().unwrap().identity_conflict);
     }
 
     #[test]

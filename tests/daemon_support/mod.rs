@@ -139,6 +139,7 @@ impl Tracker for Echo {
                 pos_cov_m2: [[1.0, 0.0], [0.0, 1.0]],
                 sensors: vec![Arc::from("kestrel-point")],
                 identity: None,
+                identity_conflict: false,
             };
             self.last.push(r.clone());
             if self.last.len() > 5 {
