@@ -17,23 +17,17 @@ use std::sync::atomic::{AtomicI64, AtomicU64, AtomicUsize, Ordering::Relaxed};
 /// Reject reason keys counted per sensor: the feed's reasons and the
 /// daemon's own `not_allowed` (a source address not on the sensor's
 /// allow-list).
-pub const REASONS: [&str; 15] = [
-    "bad_utf8",
-    "bad_json",
-    "unknown_type",
-    "missing_field",
-    "wrong_type",
-    "non_finite",
-    "out_of_range",
-    "unknown_sensor",
-    "wrong_sensor_kind",
-    "bad_time",
-    "duplicate",
-    "implausible_time",
-    "late",
-    "oversize",
-    "not_allowed",
-];
+pub const REASONS: [&str; crate::feed::RejectReason::ALL_KEYS.len() + 1] = {
+    let keys = crate::feed::RejectReason::ALL_KEYS;
+    let mut out = [""; crate::feed::RejectReason::ALL_KEYS.len() + 1];
+    let mut i = 0;
+    while i < keys.len() {
+        out[i] = keys[i];
+        i += 1;
+    }
+    out[i] = "not_allowed";
+    out
+};
 
 pub fn reason_index(key: &str) -> usize {
     REASONS.iter().position(|k| *k == key).unwrap_or(1)
