@@ -39,9 +39,15 @@ fn run_engine(cfg: &Config, records: &[Record]) -> usize {
 
 fn busy(c: &mut Criterion) {
     let dir = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-feeds/busy-afternoon");
-    let mut cfg = Config::load(Some(&dir.join("config.toml")), &Default::default()).expect("demo config");
-    let records = read_feeds(&[dir.join("feed.jsonl")], &cfg).expect("feed").records;
-    let plots = records.iter().filter(|r| matches!(r, Record::Detection(_))).count() as u64;
+    let mut cfg =
+        Config::load(Some(&dir.join("config.toml")), &Default::default()).expect("demo config");
+    let records = read_feeds(&[dir.join("feed.jsonl")], &cfg)
+        .expect("feed")
+        .records;
+    let plots = records
+        .iter()
+        .filter(|r| matches!(r, Record::Detection(_)))
+        .count() as u64;
     let mut g = c.benchmark_group("jpda");
     g.sample_size(20);
     g.throughput(Throughput::Elements(plots));
@@ -53,11 +59,19 @@ fn busy(c: &mut Criterion) {
             e.handle(r, &mut out);
         }
         e.finish(&mut out);
-        eprintln!("busy afternoon, JPDA: {plots} plots, {} track records, clusters {:?}", out.len(), e.jpda_counters());
+        eprintln!(
+            "busy afternoon, JPDA: {plots} plots, {} track records, clusters {:?}",
+            out.len(),
+            e.jpda_counters()
+        );
     }
-    g.bench_function("busy_afternoon_jpda", |b| b.iter(|| black_box(run_engine(&cfg, &records))));
+    g.bench_function("busy_afternoon_jpda", |b| {
+        b.iter(|| black_box(run_engine(&cfg, &records)))
+    });
     cfg.tracking.association = Association::Gnn;
-    g.bench_function("busy_afternoon_gnn", |b| b.iter(|| black_box(run_engine(&cfg, &records))));
+    g.bench_function("busy_afternoon_gnn", |b| {
+        b.iter(|| black_box(run_engine(&cfg, &records)))
+    });
     g.finish();
 }
 
@@ -88,16 +102,26 @@ scan_period_s = 2.5
 fn scene() -> (Config, Vec<Record>, Vec<Record>) {
     let mut text = SCENE.to_string();
     for k in 0..30 {
-        let (e, n) = (1760.0 + 480.0 * ((k * 7) % 30) as f64 / 30.0, -240.0 + 480.0 * ((k * 11) % 30) as f64 / 30.0);
+        let (e, n) = (
+            1760.0 + 480.0 * ((k * 7) % 30) as f64 / 30.0,
+            -240.0 + 480.0 * ((k * 11) % 30) as f64 / 30.0,
+        );
         text.push_str(&format!("\n[[vessels]]\nname = \"v{k}\"\neast_m = {e}\nnorth_m = {n}\ncourse_deg = {}\nspeed_kn = 0.5\n", (k * 37) % 360));
     }
     let sc = Scenario::from_toml_str(&text).expect("scenario");
     let g = generate(&sc, 1).expect("generate");
-    let mut cfg = Config::from_toml_str(&g.config_toml, "generated", &Default::default()).expect("config");
+    let mut cfg =
+        Config::from_toml_str(&g.config_toml, "generated", &Default::default()).expect("config");
     cfg.tracking.association = Association::Jpda;
     // Warm-up: the first 24 scans (60 s); the rest is the measured scan
     // and the one after it.
-    let split = g.feed.iter().position(|r| r.time().secs_since(g.feed[0].time()) >= 60.0 - 1e-9 && matches!(r, Record::ScanEnd(_))).expect("split");
+    let split = g
+        .feed
+        .iter()
+        .position(|r| {
+            r.time().secs_since(g.feed[0].time()) >= 60.0 - 1e-9 && matches!(r, Record::ScanEnd(_))
+        })
+        .expect("split");
     let warm = g.feed[..=split].to_vec();
     let rest = g.feed[split + 1..].to_vec();
     (cfg, warm, rest)
@@ -108,7 +132,14 @@ fn scene() -> (Config, Vec<Record>, Vec<Record>) {
 fn clutter(cfg: &Config, scan_start: skerry::time::Timestamp, k: usize) -> Vec<Record> {
     let site = LocalFrame::new(Geodetic::new(cfg.site.lat_deg, cfg.site.lon_deg, 0.0));
     let s = &cfg.sensors[0];
-    let antenna = Antenna::new(Geodetic::new(s.lat_deg.unwrap_or(0.0), s.lon_deg.unwrap_or(0.0), s.height_m), &site);
+    let antenna = Antenna::new(
+        Geodetic::new(
+            s.lat_deg.unwrap_or(0.0),
+            s.lon_deg.unwrap_or(0.0),
+            s.height_m,
+        ),
+        &site,
+    );
     let period = s.scan_period_s.unwrap_or(2.5);
     // splitmix64: a fixed, dependency-free stream.
     let mut state = 0x5eed_u64;
@@ -122,10 +153,19 @@ fn clutter(cfg: &Config, scan_start: skerry::time::Timestamp, k: usize) -> Vec<R
     (0..k)
         .map(|_| {
             let en = nalgebra::Vector2::new(1750.0 + 500.0 * unif(), -250.0 + 500.0 * unif());
-            let (range_m, b) = antenna.range_bearing_to(geodetic_to_ecef(site.plane_to_geodetic(en, 0.0)));
+            let (range_m, b) =
+                antenna.range_bearing_to(geodetic_to_ecef(site.plane_to_geodetic(en, 0.0)));
             let bearing_deg = b.to_degrees().rem_euclid(360.0);
             let time = scan_start.plus_secs(period * bearing_deg / 360.0);
-            Record::Detection(Detection { sensor: 0, time, scan: None, range_m, bearing_deg, radial_speed_mps: None, snr_db: None })
+            Record::Detection(Detection {
+                sensor: 0,
+                time,
+                scan: None,
+                range_m,
+                bearing_deg,
+                radial_speed_mps: None,
+                snr_db: None,
+            })
         })
         .collect()
 }
@@ -133,9 +173,18 @@ fn clutter(cfg: &Config, scan_start: skerry::time::Timestamp, k: usize) -> Vec<R
 /// The measured batch (the next scan's records up to the end of the
 /// fleet's sector, with the clutter merged in by time) and the records
 /// after it.
-fn heavy_scan(cfg: &Config, warm: &[Record], rest: &[Record], k: usize) -> (Vec<Record>, Vec<Record>) {
+fn heavy_scan(
+    cfg: &Config,
+    warm: &[Record],
+    rest: &[Record],
+    k: usize,
+) -> (Vec<Record>, Vec<Record>) {
     let scan_start = warm.last().expect("warm-up").time();
-    let mut batch: Vec<Record> = rest.iter().take_while(|r| r.time().secs_since(scan_start) < 2.5).cloned().collect();
+    let mut batch: Vec<Record> = rest
+        .iter()
+        .take_while(|r| r.time().secs_since(scan_start) < 2.5)
+        .cloned()
+        .collect();
     let after: Vec<Record> = rest[batch.len()..].to_vec();
     batch.extend(clutter(cfg, scan_start, k));
     batch.sort_by_key(|r| r.time());
@@ -175,7 +224,10 @@ fn heavy(c: &mut Criterion) {
                 e.advance(scan.last().expect("scan").time().plus_secs(1.0), &mut out);
                 t_scan.push(t0.elapsed().as_secs_f64() * 1e3);
                 let c1 = e.jpda_counters();
-                let next: Vec<&Record> = after.iter().take_while(|r| r.time().secs_since(scan[0].time()) < 5.0).collect();
+                let next: Vec<&Record> = after
+                    .iter()
+                    .take_while(|r| r.time().secs_since(scan[0].time()) < 5.0)
+                    .collect();
                 let t1 = Instant::now();
                 for r in &next {
                     e.handle(r, &mut out);
@@ -216,7 +268,9 @@ fn heavy(c: &mut Criterion) {
                 })
                 .collect();
             let (gm, gx) = stat(&mut t_gnn);
-            eprintln!("heavy batch K={k}: {line}; heavy scan median {sm:.2} ms, max {sx:.2} ms; next scan median {nm:.2} ms, max {nx:.2} ms; GNN heavy scan median {gm:.2} ms, max {gx:.2} ms");
+            eprintln!(
+                "heavy batch K={k}: {line}; heavy scan median {sm:.2} ms, max {sx:.2} ms; next scan median {nm:.2} ms, max {nx:.2} ms; GNN heavy scan median {gm:.2} ms, max {gx:.2} ms"
+            );
         }
         g.throughput(Throughput::Elements(scan.len() as u64));
         g.bench_function(format!("heavy_batch_{k}"), |b| {

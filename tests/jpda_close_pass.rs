@@ -16,7 +16,10 @@ use std::time::Instant;
 #[test]
 fn close_pass_seeds() {
     let t0 = Instant::now();
-    let n: u64 = std::env::var("JPDA_SEEDS").ok().and_then(|s| s.parse().ok()).unwrap_or(20);
+    let n: u64 = std::env::var("JPDA_SEEDS")
+        .ok()
+        .and_then(|s| s.parse().ok())
+        .unwrap_or(20);
     let [gnn, jpda, star] = campaign(0..n, Pass::for_seed);
     eprintln!("{}", gnn.line("GNN  "));
     eprintln!("{}", jpda.line("JPDA "));
@@ -32,7 +35,10 @@ fn close_pass_seeds() {
 #[test]
 fn company_seeds() {
     let t0 = Instant::now();
-    let n: u64 = std::env::var("JPDA_SEEDS").ok().and_then(|s| s.parse().ok()).unwrap_or(20);
+    let n: u64 = std::env::var("JPDA_SEEDS")
+        .ok()
+        .and_then(|s| s.parse().ok())
+        .unwrap_or(20);
     let [gnn, jpda, star] = campaign(0..n, Pass::company_for_seed);
     eprintln!("{}", gnn.line("GNN  "));
     eprintln!("{}", jpda.line("JPDA "));
@@ -41,7 +47,12 @@ fn company_seeds() {
     // The coalescence guard (Blom & Bloem 2000): with JPDA* the two tracks
     // are drawn together (under half the true separation) at fewer
     // instants than with plain JPDA, and continuity does not suffer.
-    assert!(star.merged_sum < jpda.merged_sum, "{}\n{}", jpda.line("JPDA "), star.line("JPDA*"));
+    assert!(
+        star.merged_sum < jpda.merged_sum,
+        "{}\n{}",
+        jpda.line("JPDA "),
+        star.line("JPDA*")
+    );
     assert!(star.kept_rate() >= 0.9, "{}", star.line("JPDA*"));
 }
 
@@ -50,8 +61,14 @@ fn company_seeds() {
 /// onto it by every report, so no run swaps, in either mode.
 #[test]
 fn close_pass_with_transponder_never_swaps() {
-    let n: u64 = std::env::var("JPDA_SEEDS").ok().and_then(|s| s.parse().ok()).unwrap_or(20);
-    let [gnn, jpda, star] = campaign(0..n, |seed| Pass { transponder: true, ..Pass::for_seed(seed) });
+    let n: u64 = std::env::var("JPDA_SEEDS")
+        .ok()
+        .and_then(|s| s.parse().ok())
+        .unwrap_or(20);
+    let [gnn, jpda, star] = campaign(0..n, |seed| Pass {
+        transponder: true,
+        ..Pass::for_seed(seed)
+    });
     eprintln!("with transponder:");
     eprintln!("{}", gnn.line("GNN  "));
     eprintln!("{}", jpda.line("JPDA "));

@@ -60,18 +60,32 @@ speed_kn = 8.0
 }
 
 fn config(g: &Generated, association: Association) -> Config {
-    let mut cfg = Config::from_toml_str(&g.config_toml, "generated", &Default::default()).expect("config");
+    let mut cfg =
+        Config::from_toml_str(&g.config_toml, "generated", &Default::default()).expect("config");
     cfg.tracking.association = association;
     cfg
 }
 
 /// A report of identity `id` at site-plane `en`, `t_s` after the start.
 fn report(g: &Generated, cfg: &Config, id: &str, en: (f64, f64), t_s: f64) -> Record {
-    let frame = LocalFrame::new(Geodetic::new(cfg.site.lat_deg, cfg.site.lon_deg, cfg.site.height_m));
+    let frame = LocalFrame::new(Geodetic::new(
+        cfg.site.lat_deg,
+        cfg.site.lon_deg,
+        cfg.site.height_m,
+    ));
     let p = frame.plane_to_geodetic(nalgebra::Vector2::new(en.0, en.1), 0.0);
     let sensor = g.sensors.lookup("sound-ais").expect("transponder sensor");
     let time = g.truth[0].time.plus_secs(t_s);
-    Record::Report(Report { sensor, time, id: Arc::from(id), lat_deg: p.lat_deg, lon_deg: p.lon_deg, sog_kn: None, cog_deg: None, heading_deg: None })
+    Record::Report(Report {
+        sensor,
+        time,
+        id: Arc::from(id),
+        lat_deg: p.lat_deg,
+        lon_deg: p.lon_deg,
+        sog_kn: None,
+        cog_deg: None,
+        heading_deg: None,
+    })
 }
 
 fn run(cfg: &Config, feed: &[Record]) -> (Vec<TrackRecord>, skerry::engine::EngineStats) {
@@ -90,7 +104,11 @@ fn insert(feed: &mut Vec<Record>, r: Record) {
 }
 
 fn tracks_with(out: &[TrackRecord], id: &str) -> Vec<u64> {
-    let mut v: Vec<u64> = out.iter().filter(|r| r.identity.as_deref() == Some(id)).map(|r| r.track).collect();
+    let mut v: Vec<u64> = out
+        .iter()
+        .filter(|r| r.identity.as_deref() == Some(id))
+        .map(|r| r.track)
+        .collect();
     v.dedup();
     v
 }
@@ -105,12 +123,15 @@ fn the_reporting_vessel_track_takes_the_identity() {
         // Skua by 1.5 km), and no conflict arose.
         let held = tracks_with(&out, MMSI);
         assert_eq!(held.len(), 1, "{assoc:?}: {held:?}");
-        let last = out.iter().filter(|r| r.track == held[0]).last().expect("records");
+        let last = out.iter().rfind(|r| r.track == held[0]).expect("records");
         assert!(last.north_m > -1300.0, "{assoc:?}: {last:?}");
         assert_eq!(stats.identity_conflicts, 0);
         assert!(out.iter().all(|r| !r.identity_conflict));
         // Radar plots still update the identified track.
-        assert!(out.iter().any(|r| r.track == held[0] && r.sensors.iter().any(|s| &**s == "kestrel-point")));
+        assert!(
+            out.iter()
+                .any(|r| r.track == held[0] && r.sensors.iter().any(|s| &**s == "kestrel-point"))
+        );
     }
 }
 
@@ -123,21 +144,38 @@ fn a_report_far_from_its_track_raises_a_conflict() {
         // Heron is near (1000 + 5.14·120, −1000) at 120 s; this report is
         // 3 km away, beyond the 500 m identity gate (defaults.toml).
         let t_conflict = 120.0;
-        insert(&mut feed, report(&g, &cfg, MMSI, (1600.0, 2000.0), t_conflict));
+        insert(
+            &mut feed,
+            report(&g, &cfg, MMSI, (1600.0, 2000.0), t_conflict),
+        );
         let (out, stats) = run(&cfg, &feed);
         assert_eq!(stats.identity_conflicts, 1, "{assoc:?}");
         let held = tracks_with(&out, MMSI);
-        assert_eq!(held.len(), 1, "{assoc:?}: the conflicting report must not start or move a track: {held:?}");
+        assert_eq!(
+            held.len(),
+            1,
+            "{assoc:?}: the conflicting report must not start or move a track: {held:?}"
+        );
         let recs: Vec<&TrackRecord> = out.iter().filter(|r| r.track == held[0]).collect();
         let t_c = g.truth[0].time.plus_secs(t_conflict);
         // Before: never flagged. Right after: flagged (the next radar
         // update), and written in the JSON line. After the next consistent
         // report (Class A at 10 kn: every 10 s): cleared.
-        assert!(recs.iter().filter(|r| r.time < t_c).all(|r| !r.identity_conflict));
-        let next = recs.iter().find(|r| r.time > t_c).expect("a record after the conflict");
+        assert!(
+            recs.iter()
+                .filter(|r| r.time < t_c)
+                .all(|r| !r.identity_conflict)
+        );
+        let next = recs
+            .iter()
+            .find(|r| r.time > t_c)
+            .expect("a record after the conflict");
         assert!(next.identity_conflict, "{assoc:?}");
         assert!(next.to_json().ends_with(",\"identity_conflict\":true}"));
-        let cleared = recs.iter().find(|r| r.time > t_c && r.sensors.iter().any(|s| &**s == "sound-ais")).expect("a later report update");
+        let cleared = recs
+            .iter()
+            .find(|r| r.time > t_c && r.sensors.iter().any(|s| &**s == "sound-ais"))
+            .expect("a later report update");
         assert!(!cleared.identity_conflict);
         assert!(cleared.time.secs_since(t_c) <= 12.0);
         assert!(!cleared.to_json().contains("identity_conflict"));
@@ -155,14 +193,29 @@ fn a_new_identity_takes_an_unidentified_track_or_starts_one() {
         let t = 150.0;
         let v = 8.0 * 1852.0 / 3600.0;
         let (s, c) = 80f64.to_radians().sin_cos();
-        insert(&mut feed, report(&g, &cfg, "200100099", (1000.0 + v * t * s, -2500.0 + v * t * c), t));
+        insert(
+            &mut feed,
+            report(
+                &g,
+                &cfg,
+                "200100099",
+                (1000.0 + v * t * s, -2500.0 + v * t * c),
+                t,
+            ),
+        );
         // And one far from every track starts a track of its own.
-        insert(&mut feed, report(&g, &cfg, "200100098", (-3000.0, 3000.0), t + 1.0));
+        insert(
+            &mut feed,
+            report(&g, &cfg, "200100098", (-3000.0, 3000.0), t + 1.0),
+        );
         let (out, _) = run(&cfg, &feed);
         let skua = tracks_with(&out, "200100099");
         assert_eq!(skua.len(), 1);
         let first = out.iter().find(|r| r.track == skua[0]).expect("records");
-        assert!(first.time < g.truth[0].time.plus_secs(t), "{assoc:?}: the identity went to the existing track");
+        assert!(
+            first.time < g.truth[0].time.plus_secs(t),
+            "{assoc:?}: the identity went to the existing track"
+        );
         let lone = tracks_with(&out, "200100098");
         assert_eq!(lone.len(), 1);
         let rec = out.iter().find(|r| r.track == lone[0]).expect("record");
@@ -176,7 +229,12 @@ fn a_new_identity_takes_an_unidentified_track_or_starts_one() {
 fn jpda_output_is_deterministic() {
     let g = scenario();
     let cfg = config(&g, Association::Jpda);
-    let lines = |out: Vec<TrackRecord>| out.iter().map(|r| r.to_json()).collect::<Vec<_>>().join("\n");
+    let lines = |out: Vec<TrackRecord>| {
+        out.iter()
+            .map(|r| r.to_json())
+            .collect::<Vec<_>>()
+            .join("\n")
+    };
     let a = lines(run(&cfg, &g.feed).0);
     let b = lines(run(&cfg, &g.feed).0);
     assert!(!a.is_empty());

@@ -12,14 +12,23 @@ use skerry::engine::pda::{PdaParams, PdaPlot, imm_pda_update, pda_update};
 
 fn params(f: &Value) -> PdaParams {
     let p = &f["params"];
-    PdaParams { pd: num(&p["pd"]), pg: num(&p["pg"]), lambda: num(&p["lambda"]) }
+    PdaParams {
+        pd: num(&p["pd"]),
+        pg: num(&p["pg"]),
+        lambda: num(&p["lambda"]),
+    }
 }
 
 fn plots(v: &Value) -> Vec<PdaPlot> {
     v.as_array()
         .expect("plots")
         .iter()
-        .map(|p| PdaPlot { z: v2(&p["z"]), r: m2(&p["r"]), beta: num(&p["beta"]), lead_s: num(&p["lead_s"]) })
+        .map(|p| PdaPlot {
+            z: v2(&p["z"]),
+            r: m2(&p["r"]),
+            beta: num(&p["beta"]),
+            lead_s: num(&p["lead_s"]),
+        })
         .collect()
 }
 
@@ -30,7 +39,8 @@ fn pda_update_matches_numpy() {
     for (i, c) in f["single"].as_array().expect("single").iter().enumerate() {
         let g = gaussian(&c["x"], &c["p"]);
         let want = gaussian(&c["x_post"], &c["p_post"]);
-        let (got, ln_l) = pda_update(&g, &plots(&c["plots"]), num(&c["beta0"]), &params).expect("update");
+        let (got, ln_l) =
+            pda_update(&g, &plots(&c["plots"]), num(&c["beta0"]), &params).expect("update");
         assert_state_close(&got.x, &want.x, &want.p, 1e-9, &format!("case {i} x"));
         assert_cov_close(&got.p, &want.p, 1e-9, &format!("case {i} P"));
         assert_rel(ln_l, num(&c["ln_lambda"]), 1e-9, &format!("case {i} ln Λ"));
@@ -45,19 +55,38 @@ fn imm_pda_update_matches_numpy() {
     let imm = Imm::vessel_default();
     for (i, c) in f["imm"].as_array().expect("imm").iter().enumerate() {
         let comps = c["comps"].as_array().expect("comps");
-        let mut pred = ImmState { comps: [gaussian(&comps[0]["x"], &comps[0]["p"]); MAX_MODELS], mu: [0.0; MAX_MODELS] };
+        let mut pred = ImmState {
+            comps: [gaussian(&comps[0]["x"], &comps[0]["p"]); MAX_MODELS],
+            mu: [0.0; MAX_MODELS],
+        };
         for m in 0..3 {
             pred.comps[m] = gaussian(&comps[m]["x"], &comps[m]["p"]);
             pred.mu[m] = num(&c["mu_pred"][m]);
         }
-        let got = imm_pda_update(&imm, &pred, &plots(&c["plots"]), num(&c["beta0"]), &params).expect("update");
+        let got = imm_pda_update(&imm, &pred, &plots(&c["plots"]), num(&c["beta0"]), &params)
+            .expect("update");
         for m in 0..3 {
             let w = &c["comps_post"][m];
             let want = gaussian(&w["x"], &w["p"]);
-            assert_state_close(&got.comps[m].x, &want.x, &want.p, 1e-9, &format!("case {i} model {m} x"));
-            assert_cov_close(&got.comps[m].p, &want.p, 1e-9, &format!("case {i} model {m} P"));
+            assert_state_close(
+                &got.comps[m].x,
+                &want.x,
+                &want.p,
+                1e-9,
+                &format!("case {i} model {m} x"),
+            );
+            assert_cov_close(
+                &got.comps[m].p,
+                &want.p,
+                1e-9,
+                &format!("case {i} model {m} P"),
+            );
             let mu = num(&c["mu_post"][m]);
-            assert!((got.mu[m] - mu).abs() < 1e-9, "case {i} μ{m}: {} vs {mu}", got.mu[m]);
+            assert!(
+                (got.mu[m] - mu).abs() < 1e-9,
+                "case {i} μ{m}: {} vs {mu}",
+                got.mu[m]
+            );
         }
     }
 }

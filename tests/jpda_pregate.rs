@@ -12,9 +12,12 @@ use std::path::PathBuf;
 #[test]
 fn pregate_changes_nothing_on_the_busy_harbour() {
     let dir = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-feeds/busy-afternoon");
-    let mut cfg = Config::load(Some(&dir.join("config.toml")), &Default::default()).expect("config");
+    let mut cfg =
+        Config::load(Some(&dir.join("config.toml")), &Default::default()).expect("config");
     cfg.tracking.association = Association::Jpda;
-    let records = read_feeds(&[dir.join("feed.jsonl")], &cfg).expect("feed").records;
+    let records = read_feeds(&[dir.join("feed.jsonl")], &cfg)
+        .expect("feed")
+        .records;
     let run = |pregate: bool| {
         let mut e = Engine::new(&cfg).expect("engine");
         e.set_jpda_pregate(pregate);

@@ -29,7 +29,9 @@ impl Engine {
         let model = &self.models[r.sensor as usize];
         self.stats.reports += 1;
         let sigma = model.position_sigma_m;
-        let z = self.site.geodetic_to_plane(Geodetic::new(r.lat_deg, r.lon_deg, 0.0));
+        let z = self
+            .site
+            .geodetic_to_plane(Geodetic::new(r.lat_deg, r.lon_deg, 0.0));
         let rcov = Matrix2::new(sigma * sigma, 0.0, 0.0, sigma * sigma);
         if let Some(&idx) = self.identities.get(&r.id) {
             let t = &self.tracks[idx as usize];
@@ -66,8 +68,14 @@ impl Engine {
                 continue;
             }
             let dt = r.time.secs_since(t.time).max(0.0);
-            let g = self.imm.combine(&if dt > 0.0 { self.imm.predict(&t.state, dt) } else { t.state });
-            let Some(inn) = innovation(&g, &z, &rcov) else { continue };
+            let g = self.imm.combine(&if dt > 0.0 {
+                self.imm.predict(&t.state, dt)
+            } else {
+                t.state
+            });
+            let Some(inn) = innovation(&g, &z, &rcov) else {
+                continue;
+            };
             if inn.d2 > self.gate_d2 {
                 continue;
             }

@@ -52,7 +52,7 @@
 
 use super::imm::ImmState;
 use super::jpda::Method;
-use super::jpda_cluster::{ClusterSolver, Edge, Variant};
+use super::jpda_cluster::{ClusterSolver, Edge, Marginals, Variant};
 use super::pda::{PdaParams, PdaPlot, imm_pda_update};
 use super::*;
 
@@ -144,7 +144,12 @@ impl Reach {
         let root = sp + dt * sv + vmax * dt * dt * sw;
         let drift = dp + dt * vmax;
         let pos_trace = root * root + 2.0 * q * dt * dt * dt / 3.0 + 4.0 * drift * drift;
-        Reach { centre, drift, vmax, pos_trace }
+        Reach {
+            centre,
+            drift,
+            vmax,
+            pos_trace,
+        }
     }
 
     /// False only if a plot at `z` with covariance `r`, `lead` seconds
@@ -152,7 +157,9 @@ impl Reach {
     /// d² ≤ g implies |ν|² ≤ g·λ_max(S) ≤ g·tr(S).
     #[inline]
     fn may_gate(&self, z: &Vector2<f64>, r: &Matrix2<f64>, lead: f64, gate_d2: f64) -> bool {
-        let reach = (gate_d2 * (self.pos_trace + r[(0, 0)] + r[(1, 1)])).sqrt() + self.drift + lead.abs() * self.vmax;
+        let reach = (gate_d2 * (self.pos_trace + r[(0, 0)] + r[(1, 1)])).sqrt()
+            + self.drift
+            + lead.abs() * self.vmax;
         // A small relative margin covers rounding in the bound itself.
         (z - self.centre).norm() <= reach * (1.0 + 1e-9) + 1e-6
     }
@@ -192,8 +199,7 @@ pub(super) struct Jpda {
     row_local: Vec<u32>,
     w0: Vec<f64>,
     edges: Vec<Edge>,
-    beta0: Vec<f64>,
-    beta: Vec<f64>,
+    marg: Marginals,
     pair_beta: Vec<f64>,
     col_beta0: Vec<f64>,
     plot_total: Vec<f64>,
@@ -204,7 +210,12 @@ pub(super) struct Jpda {
 
 impl Jpda {
     pub(super) fn new(max_events: u64) -> Self {
-        Jpda { max_events, prune: true, pregate: true, ..Default::default() }
+        Jpda {
+            max_events,
+            prune: true,
+            pregate: true,
+            ..Default::default()
+        }
     }
 }
 
@@ -242,7 +253,11 @@ impl Engine {
     fn gate_prediction(&self, sc: &mut Jpda, col: usize, at: Timestamp) {
         let t = &self.tracks[sc.col_track[col] as usize];
         let dt = at.secs_since(t.time).max(0.0);
-        let pred = if dt > 0.0 { self.imm.predict(&t.state, dt) } else { t.state };
+        let pred = if dt > 0.0 {
+            self.imm.predict(&t.state, dt)
+        } else {
+            t.state
+        };
         sc.gate_comb[col] = self.imm.combine(&pred);
         sc.gate_pred[col] = pred;
         sc.predicted[col] = true;
@@ -264,7 +279,11 @@ impl Engine {
         let params = PdaParams { pd, pg, lambda };
         let ln_w0 = (1.0 - pd * pg).ln();
         let ln_pd_l = pd.ln() - lambda.ln();
-        let variant = if self.jpda.prune { Variant::JpdaStar } else { Variant::Jpda };
+        let variant = if self.jpda.prune {
+            Variant::JpdaStar
+        } else {
+            Variant::Jpda
+        };
         let max_events = self.jpda.max_events;
         let mut sc = std::mem::take(&mut self.jpda);
         let n_rows = batch.plots.len();
@@ -284,7 +303,8 @@ impl Engine {
             for dx in -1..=1 {
                 for dy in -1..=1 {
                     if let Some(v) = self.grid.get(&(cx + dx, cy + dy)) {
-                        sc.cand.extend(v.iter().copied().filter(|&i| !self.tracks[i as usize].wide));
+                        sc.cand
+                            .extend(v.iter().copied().filter(|&i| !self.tracks[i as usize].wide));
                     }
                 }
             }
@@ -312,12 +332,16 @@ impl Engine {
                     sc.reach.push(Reach::of(&t.state, self.imm.models(), dt));
                 }
                 let t = &self.tracks[idx as usize];
-                if t.last_hit(sensor).is_some_and(|h| plot.det.time.secs_since(h) < min_gap) {
+                if t.last_hit(sensor)
+                    .is_some_and(|h| plot.det.time.secs_since(h) < min_gap)
+                {
                     continue;
                 }
                 let col = t.col;
                 let lead = plot.det.time.secs_since(batch.first);
-                if sc.pregate && !sc.reach[col as usize].may_gate(&plot.z, &plot.r, lead, self.gate_d2) {
+                if sc.pregate
+                    && !sc.reach[col as usize].may_gate(&plot.z, &plot.r, lead, self.gate_d2)
+                {
                     continue;
                 }
                 if !sc.predicted[col as usize] {
@@ -326,18 +350,34 @@ impl Engine {
                 // The gate: inside any model's gate, as with GNN (the widest
                 // model decides at the onset of a manoeuvre). The weight:
                 // the combined prediction's likelihood.
-                if imm_gate(self.imm.n_models(), &sc.gate_pred[col as usize], lead, &plot.z, &plot.r, self.gate_d2).is_none() {
+                if imm_gate(
+                    self.imm.n_models(),
+                    &sc.gate_pred[col as usize],
+                    lead,
+                    &plot.z,
+                    &plot.r,
+                    self.gate_d2,
+                )
+                .is_none()
+                {
                     continue;
                 }
                 let g = &sc.gate_comb[col as usize];
                 let mut moved = *g;
                 moved.x[0] += g.x[2] * lead;
                 moved.x[1] += g.x[3] * lead;
-                let Some(inn) = innovation(&moved, &plot.z, &plot.r) else { continue };
+                let Some(inn) = innovation(&moved, &plot.z, &plot.r) else {
+                    continue;
+                };
                 if t.status.is_firm() {
                     sc.near_firm[row] = true;
                 }
-                sc.pairs.push(Pair { row: row as u32, col, cluster: 0, ln_w: ln_pd_l + inn.log_likelihood() });
+                sc.pairs.push(Pair {
+                    row: row as u32,
+                    col,
+                    cluster: 0,
+                    ln_w: ln_pd_l + inn.log_likelihood(),
+                });
             }
         }
 
@@ -364,8 +404,10 @@ impl Engine {
             sc.col_start[p.col as usize] += 1;
         }
         sc.col_order.clear();
-        sc.col_order.extend((0..n_cols as u32).filter(|&c| sc.col_start[c as usize] > 0));
-        sc.col_order.sort_unstable_by_key(|&c| (find(&mut sc.parent, c), c));
+        sc.col_order
+            .extend((0..n_cols as u32).filter(|&c| sc.col_start[c as usize] > 0));
+        sc.col_order
+            .sort_unstable_by_key(|&c| (find(&mut sc.parent, c), c));
         // Counts become each column's first slot, in cluster order.
         let mut at = 0u32;
         for &c in &sc.col_order {
@@ -374,7 +416,15 @@ impl Engine {
             at += n;
         }
         sc.sorted.clear();
-        sc.sorted.resize(sc.pairs.len(), Pair { row: 0, col: 0, cluster: 0, ln_w: 0.0 });
+        sc.sorted.resize(
+            sc.pairs.len(),
+            Pair {
+                row: 0,
+                col: 0,
+                cluster: 0,
+                ln_w: 0.0,
+            },
+        );
         for p in &sc.pairs {
             let slot = &mut sc.col_start[p.col as usize];
             sc.sorted[*slot as usize] = *p;
@@ -423,12 +473,23 @@ impl Engine {
                         *local = n_plots;
                         n_plots += 1;
                     }
-                    sc.edges.push(Edge { track, plot: *local, w: (p.ln_w - top).exp() });
+                    sc.edges.push(Edge {
+                        track,
+                        plot: *local,
+                        w: (p.ln_w - top).exp(),
+                    });
                 }
                 k = e;
             }
             let allowed = max_events.min(budget);
-            let o = sc.solver.solve(&sc.w0, n_plots as usize, &sc.edges, variant, allowed, &mut sc.beta0, &mut sc.beta);
+            let o = sc.solver.solve(
+                &sc.w0,
+                n_plots as usize,
+                &sc.edges,
+                variant,
+                allowed,
+                &mut sc.marg,
+            );
             let c = &mut sc.counters;
             if sc.w0.len() > 1 {
                 c.shared_clusters += 1;
@@ -452,10 +513,10 @@ impl Engine {
             for k in start..end {
                 let p = sc.pairs[k];
                 if k == start || sc.pairs[k - 1].col != p.col {
-                    sc.col_beta0[p.col as usize] = sc.beta0[local_track];
+                    sc.col_beta0[p.col as usize] = sc.marg.beta0[local_track];
                     local_track += 1;
                 }
-                let b = sc.beta[k - start];
+                let b = sc.marg.beta[k - start];
                 sc.pair_beta[k] = b;
                 sc.plot_total[p.row as usize] += b;
                 sc.row_local[p.row as usize] = NONE;
@@ -480,23 +541,38 @@ impl Engine {
                     best = k;
                 }
             }
-            if !(sc.pair_beta[best] > 0.0) {
+            // Every β zero (or not a number): nothing to update with.
+            if sc.pair_beta[best].is_nan() || sc.pair_beta[best] <= 0.0 {
                 continue;
             }
             let at = batch.plots[sc.pairs[best].row as usize].det.time;
             sc.pda_plots.clear();
             for k in range {
                 let plot = &batch.plots[sc.pairs[k].row as usize];
-                sc.pda_plots.push(PdaPlot { z: plot.z, r: plot.r, beta: sc.pair_beta[k], lead_s: plot.det.time.secs_since(at) });
+                sc.pda_plots.push(PdaPlot {
+                    z: plot.z,
+                    r: plot.r,
+                    beta: sc.pair_beta[k],
+                    lead_s: plot.det.time.secs_since(at),
+                });
             }
             let beta0 = sc.col_beta0[col as usize];
             let idx = sc.col_track[col as usize];
             let t = &self.tracks[idx as usize];
             let dt = at.secs_since(t.time).max(0.0);
-            let pred = if dt > 0.0 { self.imm.predict(&t.state, dt) } else { t.state };
-            let Some(state) = imm_pda_update(&self.imm, &pred, &sc.pda_plots, beta0, &params) else { continue };
+            let pred = if dt > 0.0 {
+                self.imm.predict(&t.state, dt)
+            } else {
+                t.state
+            };
+            let Some(state) = imm_pda_update(&self.imm, &pred, &sc.pda_plots, beta0, &params)
+            else {
+                continue;
+            };
             let hit = beta0 < 0.5;
-            let first_hit_this_scan = t.last_hit(sensor).is_none_or(|h| Some(h) <= self.sensor_state[sensor as usize].last_scan_end);
+            let first_hit_this_scan = t
+                .last_hit(sensor)
+                .is_none_or(|h| Some(h) <= self.sensor_state[sensor as usize].last_scan_end);
             let est = self.imm.combine(&state);
             let t = &mut self.tracks[idx as usize];
             t.state = state;
@@ -506,7 +582,9 @@ impl Engine {
                 t.note_hit(sensor, at);
                 // As with GNN: a tentative track faster than any vessel
                 // here is clutter strung together; end it.
-                if t.status == TrackStatus::Tentative && est.x[2].hypot(est.x[3]) > self.max_speed_mps {
+                if t.status == TrackStatus::Tentative
+                    && est.x[2].hypot(est.x[3]) > self.max_speed_mps
+                {
                     t.status = TrackStatus::Ended;
                     self.pending_compact = true;
                     out.push(self.record_of(&self.tracks[idx as usize], at, &est, Some(sensor)));
@@ -545,7 +623,11 @@ impl Engine {
             for col in 0..n_cols {
                 let idx = sc.col_track[col];
                 let t = &self.tracks[idx as usize];
-                if t.status != TrackStatus::Coasting || sc.col_taken[col] || t.last_hit(sensor).is_some_and(|h| plot.det.time.secs_since(h) < min_gap) {
+                if t.status != TrackStatus::Coasting
+                    || sc.col_taken[col]
+                    || t.last_hit(sensor)
+                        .is_some_and(|h| plot.det.time.secs_since(h) < min_gap)
+                {
                     continue;
                 }
                 if sc.pregate && !sc.reach[col].may_gate(&plot.z, &plot.r, lead, wide_d2) {
@@ -554,15 +636,28 @@ impl Engine {
                 if !sc.predicted[col] {
                     self.gate_prediction(&mut sc, col, batch.first);
                 }
-                if let Some(ll) = imm_gate(self.imm.n_models(), &sc.gate_pred[col], lead, &plot.z, &plot.r, wide_d2) {
-                    if best.is_none_or(|(b, _)| ll > b) {
-                        best = Some((ll, col));
-                    }
+                if let Some(ll) = imm_gate(
+                    self.imm.n_models(),
+                    &sc.gate_pred[col],
+                    lead,
+                    &plot.z,
+                    &plot.r,
+                    wide_d2,
+                ) && best.is_none_or(|(b, _)| ll > b)
+                {
+                    best = Some((ll, col));
                 }
             }
             if let Some((_, col)) = best {
                 sc.col_taken[col] = true;
-                if self.update_track(sc.col_track[col], &plot.z, &plot.r, plot.det.time, sensor, out) {
+                if self.update_track(
+                    sc.col_track[col],
+                    &plot.z,
+                    &plot.r,
+                    plot.det.time,
+                    sensor,
+                    out,
+                ) {
                     self.stats.plots_associated += 1;
                     continue;
                 }
@@ -595,7 +690,10 @@ mod tests {
         let imm = Imm::new(
             &[
                 Motion::ConstantVelocity { accel_psd: 1e-4 },
-                Motion::CoordinatedTurn { accel_psd: 0.01, turn_psd: 1e-4 },
+                Motion::CoordinatedTurn {
+                    accel_psd: 0.01,
+                    turn_psd: 1e-4,
+                },
                 Motion::ConstantVelocity { accel_psd: 0.3 },
             ],
             Switching::Sojourn([1800.0, 10.0, 10.0]),
@@ -605,8 +703,20 @@ mod tests {
         let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(31);
         let (mut gated, mut checked, mut model_gated) = (0, 0, 0);
         for _ in 0..3000 {
-            let mut s = imm.init(Gaussian { x: StateVec::zeros(), p: StateCov::identity() }, None);
-            let base = StateVec::new(rng.random_range(-500.0..500.0), rng.random_range(-500.0..500.0), rng.random_range(-10.0..10.0), rng.random_range(-10.0..10.0), 0.0);
+            let mut s = imm.init(
+                Gaussian {
+                    x: StateVec::zeros(),
+                    p: StateCov::identity(),
+                },
+                None,
+            );
+            let base = StateVec::new(
+                rng.random_range(-500.0..500.0),
+                rng.random_range(-500.0..500.0),
+                rng.random_range(-10.0..10.0),
+                rng.random_range(-10.0..10.0),
+                0.0,
+            );
             for c in s.comps.iter_mut() {
                 let mut x = base;
                 x[0] += rng.random_range(-30.0..30.0);
@@ -619,10 +729,18 @@ mod tests {
                 c.x = x;
                 c.p = scale * (a * a.transpose() + StateCov::identity() * 0.1) * scale;
             }
-            let mu: [f64; 3] = [rng.random_range(0.01..1.0), rng.random_range(0.01..1.0), rng.random_range(0.01..1.0)];
+            let mu: [f64; 3] = [
+                rng.random_range(0.01..1.0),
+                rng.random_range(0.01..1.0),
+                rng.random_range(0.01..1.0),
+            ];
             let total: f64 = mu.iter().sum();
             s.mu = mu.map(|m| m / total);
-            let dt = if rng.random_bool(0.2) { rng.random_range(0.0..40.0) } else { rng.random_range(0.0..3.0) };
+            let dt = if rng.random_bool(0.2) {
+                rng.random_range(0.0..40.0)
+            } else {
+                rng.random_range(0.0..3.0)
+            };
             let reach = Reach::of(&s, imm.models(), dt);
             let pred = imm.predict(&s, dt);
             let g = imm.combine(&pred);
@@ -632,25 +750,40 @@ mod tests {
                 let r = Matrix2::new(sigma * sigma, 0.0, 0.0, 0.5 * sigma * sigma);
                 // Plots spread around the prediction out to a few gate radii.
                 let spread = 4.0 * (g.p[(0, 0)] + g.p[(1, 1)] + r[(0, 0)] + r[(1, 1)]).sqrt();
-                let z = Vector2::new(g.x[0] + g.x[2] * lead + rng.random_range(-spread..spread), g.x[1] + g.x[3] * lead + rng.random_range(-spread..spread));
+                let z = Vector2::new(
+                    g.x[0] + g.x[2] * lead + rng.random_range(-spread..spread),
+                    g.x[1] + g.x[3] * lead + rng.random_range(-spread..spread),
+                );
                 let mut moved = g;
                 moved.x[0] += g.x[2] * lead;
                 moved.x[1] += g.x[3] * lead;
-                let Some(inn) = innovation(&moved, &z, &r) else { continue };
+                let Some(inn) = innovation(&moved, &z, &r) else {
+                    continue;
+                };
                 checked += 1;
                 if inn.d2 <= gate_d2 {
                     gated += 1;
-                    assert!(reach.may_gate(&z, &r, lead, gate_d2), "dropped a gated pair: d2 {}", inn.d2);
+                    assert!(
+                        reach.may_gate(&z, &r, lead, gate_d2),
+                        "dropped a gated pair: d2 {}",
+                        inn.d2
+                    );
                 }
                 // Any model's gate, normal and manoeuvre (the engine's gates).
                 for scale in [1.0, SECOND_CHANCE_SCALE] {
                     if imm_gate(3, &pred, lead, &z, &r, scale * gate_d2).is_some() {
                         model_gated += 1;
-                        assert!(reach.may_gate(&z, &r, lead, scale * gate_d2), "dropped a pair in a model's gate ×{scale}");
+                        assert!(
+                            reach.may_gate(&z, &r, lead, scale * gate_d2),
+                            "dropped a pair in a model's gate ×{scale}"
+                        );
                     }
                 }
             }
         }
-        assert!(gated > 1000 && model_gated > gated && checked > gated, "{gated}, {model_gated} of {checked}");
+        assert!(
+            gated > 1000 && model_gated > gated && checked > gated,
+            "{gated}, {model_gated} of {checked}"
+        );
     }
 }

@@ -79,6 +79,13 @@ struct Event {
     start: u32,
 }
 
+/// A cluster's marginals: `beta0[i]` per track, `beta[e]` per edge.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct Marginals {
+    pub beta0: Vec<f64>,
+    pub beta: Vec<f64>,
+}
+
 /// Scratch space for [`ClusterSolver::solve`].
 #[derive(Default)]
 pub struct ClusterSolver {
@@ -150,7 +157,12 @@ impl Dfs<'_> {
                         plots |= 1u128 << self.edges[c as usize].plot;
                     }
                 }
-                events.push(Event { tracks, plots, p, start: choices.len() as u32 });
+                events.push(Event {
+                    tracks,
+                    plots,
+                    p,
+                    start: choices.len() as u32,
+                });
                 choices.extend_from_slice(self.choice);
             }
         }
@@ -163,7 +175,16 @@ impl ClusterSolver {
     }
 
     /// Marginals of one cluster of `w0.len()` tracks and `n_plots` plots.
-    pub fn solve(&mut self, w0: &[f64], n_plots: usize, edges: &[Edge], variant: Variant, max_events: u64, beta0: &mut Vec<f64>, beta: &mut Vec<f64>) -> Outcome {
+    pub fn solve(
+        &mut self,
+        w0: &[f64],
+        n_plots: usize,
+        edges: &[Edge],
+        variant: Variant,
+        max_events: u64,
+        out: &mut Marginals,
+    ) -> Outcome {
+        let Marginals { beta0, beta } = out;
         let nt = w0.len();
         beta0.clear();
         beta0.resize(nt, 0.0);
@@ -177,10 +198,17 @@ impl ClusterSolver {
         for i in 0..nt {
             self.track_start[i + 1] += self.track_start[i];
         }
-        let bound: f64 = (0..nt).map(|i| 1.0 + (self.track_start[i + 1] - self.track_start[i]) as f64).product();
+        let bound: f64 = (0..nt)
+            .map(|i| 1.0 + (self.track_start[i + 1] - self.track_start[i]) as f64)
+            .product();
         if bound > max_events as f64 {
             let sweeps = self.belief_propagation(w0, n_plots, edges, beta0, beta);
-            return Outcome { method: Method::BeliefPropagation, bound, work: sweeps as u64, unpruned: false };
+            return Outcome {
+                method: Method::BeliefPropagation,
+                bound,
+                work: sweeps as u64,
+                unpruned: false,
+            };
         }
         // Every track has at least one edge in a real cluster, so nt ≤
         // log2(max_events) < 64 and the track mask fits.
@@ -199,7 +227,11 @@ impl ClusterSolver {
             used: &mut self.used,
             beta0,
             beta,
-            store: if prune { Some((&mut self.events, &mut self.event_choices)) } else { None },
+            store: if prune {
+                Some((&mut self.events, &mut self.event_choices))
+            } else {
+                None
+            },
             total: 0.0,
             leaves: 0,
         };
@@ -208,7 +240,12 @@ impl ClusterSolver {
         if prune {
             // Group by (tracks, plots); the most probable of each group
             // first, ties to the earlier event (the order is fixed).
-            self.events.sort_unstable_by(|a, b| (a.tracks, a.plots).cmp(&(b.tracks, b.plots)).then(b.p.total_cmp(&a.p)).then(a.start.cmp(&b.start)));
+            self.events.sort_unstable_by(|a, b| {
+                (a.tracks, a.plots)
+                    .cmp(&(b.tracks, b.plots))
+                    .then(b.p.total_cmp(&a.p))
+                    .then(a.start.cmp(&b.start))
+            });
             let mut k = 0;
             while k < self.events.len() {
                 let best = self.events[k];
@@ -222,7 +259,9 @@ impl ClusterSolver {
                     }
                 }
                 k += 1;
-                while k < self.events.len() && (self.events[k].tracks, self.events[k].plots) == (best.tracks, best.plots) {
+                while k < self.events.len()
+                    && (self.events[k].tracks, self.events[k].plots) == (best.tracks, best.plots)
+                {
                     k += 1;
                 }
             }
@@ -235,12 +274,23 @@ impl ClusterSolver {
             beta0.iter_mut().for_each(|v| *v = 1.0);
             beta.iter_mut().for_each(|v| *v = 0.0);
         }
-        Outcome { method: Method::Exact, bound, work: leaves, unpruned: variant == Variant::JpdaStar && nt > 1 && !prune }
+        Outcome {
+            method: Method::Exact,
+            bound,
+            work: leaves,
+            unpruned: variant == Variant::JpdaStar && nt > 1 && !prune,
+        }
     }
 
     /// Sparse loopy belief propagation; returns the sweeps made.
-    fn belief_propagation(&mut self, w0: &[f64], n_plots: usize, edges: &[Edge], beta0: &mut [f64], beta: &mut [f64]) -> usize {
-        let nt = w0.len();
+    fn belief_propagation(
+        &mut self,
+        w0: &[f64],
+        n_plots: usize,
+        edges: &[Edge],
+        beta0: &mut [f64],
+        beta: &mut [f64],
+    ) -> usize {
         let ne = edges.len();
         // Edges by plot.
         self.plot_start.clear();
@@ -269,19 +319,33 @@ impl ClusterSolver {
         let mut sweeps = 0;
         for _ in 0..max_iter {
             sweeps += 1;
-            for i in 0..nt {
-                let (a, b) = (self.track_start[i] as usize, self.track_start[i + 1] as usize);
-                let s: f64 = w0[i] + (a..b).map(|e| edges[e].w * self.nu[e]).sum::<f64>();
-                for e in a..b {
-                    let w = edges[e].w;
-                    let denom = s - w * self.nu[e];
-                    self.mu[e] = if denom > 0.0 { w / denom } else { 1e300 };
+            for (i, &w0i) in w0.iter().enumerate() {
+                let (a, b) = (
+                    self.track_start[i] as usize,
+                    self.track_start[i + 1] as usize,
+                );
+                let s: f64 = w0i
+                    + edges[a..b]
+                        .iter()
+                        .zip(&self.nu[a..b])
+                        .map(|(e, nu)| e.w * nu)
+                        .sum::<f64>();
+                for ((e, nu), mu) in edges[a..b]
+                    .iter()
+                    .zip(&self.nu[a..b])
+                    .zip(&mut self.mu[a..b])
+                {
+                    let denom = s - e.w * nu;
+                    *mu = if denom > 0.0 { e.w / denom } else { 1e300 };
                 }
             }
             let mut change: f64 = 0.0;
             for j in 0..n_plots {
                 let (a, b) = (self.plot_start[j] as usize, self.plot_start[j + 1] as usize);
-                let t: f64 = self.plot_edges[a..b].iter().map(|&e| self.mu[e as usize]).sum();
+                let t: f64 = self.plot_edges[a..b]
+                    .iter()
+                    .map(|&e| self.mu[e as usize])
+                    .sum();
                 for &e in &self.plot_edges[a..b] {
                     let e = e as usize;
                     let v = 1.0 / (1.0 + t - self.mu[e]);
@@ -293,12 +357,20 @@ impl ClusterSolver {
                 break;
             }
         }
-        for i in 0..nt {
-            let (a, b) = (self.track_start[i] as usize, self.track_start[i + 1] as usize);
-            let s: f64 = w0[i] + (a..b).map(|e| edges[e].w * self.nu[e]).sum::<f64>();
-            beta0[i] = w0[i] / s;
-            for e in a..b {
-                beta[e] = edges[e].w * self.nu[e] / s;
+        for (i, &w0i) in w0.iter().enumerate() {
+            let (a, b) = (
+                self.track_start[i] as usize,
+                self.track_start[i + 1] as usize,
+            );
+            let s: f64 = w0i
+                + edges[a..b]
+                    .iter()
+                    .zip(&self.nu[a..b])
+                    .map(|(e, nu)| e.w * nu)
+                    .sum::<f64>();
+            beta0[i] = w0i / s;
+            for ((e, nu), b) in edges[a..b].iter().zip(&self.nu[a..b]).zip(&mut beta[a..b]) {
+                *b = e.w * nu / s;
             }
         }
         sweeps
@@ -320,12 +392,20 @@ mod tests {
             let before = edges.len();
             for j in 0..np {
                 if rng.random::<f64>() < density {
-                    edges.push(Edge { track: i as u32, plot: j as u32, w: rng.random_range(0.01..20.0) });
+                    edges.push(Edge {
+                        track: i as u32,
+                        plot: j as u32,
+                        w: rng.random_range(0.01..20.0),
+                    });
                 }
             }
             if edges.len() == before {
                 let j = rng.random_range(0..np);
-                edges.push(Edge { track: i as u32, plot: j as u32, w: rng.random_range(0.01..20.0) });
+                edges.push(Edge {
+                    track: i as u32,
+                    plot: j as u32,
+                    w: rng.random_range(0.01..20.0),
+                });
             }
         }
         (w0, edges)
@@ -387,10 +467,23 @@ mod tests {
         out
     }
 
-    fn check(w0: &[f64], np: usize, edges: &[Edge], beta0: &[f64], beta: &[f64], want: &[f64], tol: f64) {
+    fn check(
+        w0: &[f64],
+        np: usize,
+        edges: &[Edge],
+        beta0: &[f64],
+        beta: &[f64],
+        want: &[f64],
+        tol: f64,
+    ) {
         let cols = np + 1;
         for i in 0..w0.len() {
-            assert!((beta0[i] - want[i * cols]).abs() < tol, "track {i}: β₀ {} vs {}", beta0[i], want[i * cols]);
+            assert!(
+                (beta0[i] - want[i * cols]).abs() < tol,
+                "track {i}: β₀ {} vs {}",
+                beta0[i],
+                want[i * cols]
+            );
         }
         for (k, e) in edges.iter().enumerate() {
             let r = want[e.track as usize * cols + e.plot as usize + 1];
@@ -402,14 +495,22 @@ mod tests {
     fn exact_jpda_matches_brute_force() {
         let mut rng = ChaCha8Rng::seed_from_u64(21);
         let mut solver = ClusterSolver::new();
-        let (mut b0, mut b) = (Vec::new(), Vec::new());
+        let mut m = Marginals::default();
         for _ in 0..300 {
             let nt = rng.random_range(1..=5);
             let np = rng.random_range(1..=5);
             let (w0, edges) = random(&mut rng, nt, np, 0.6);
-            let o = solver.solve(&w0, np, &edges, Variant::Jpda, 1 << 20, &mut b0, &mut b);
+            let o = solver.solve(&w0, np, &edges, Variant::Jpda, 1 << 20, &mut m);
             assert_eq!(o.method, Method::Exact);
-            check(&w0, np, &edges, &b0, &b, &brute(&dense(&w0, np, &edges), false), 1e-12);
+            check(
+                &w0,
+                np,
+                &edges,
+                &m.beta0,
+                &m.beta,
+                &brute(&dense(&w0, np, &edges), false),
+                1e-12,
+            );
         }
     }
 
@@ -417,16 +518,16 @@ mod tests {
     fn jpda_star_matches_brute_force() {
         let mut rng = ChaCha8Rng::seed_from_u64(22);
         let mut solver = ClusterSolver::new();
-        let (mut b0, mut b) = (Vec::new(), Vec::new());
+        let mut m = Marginals::default();
         let mut differs = 0;
         for _ in 0..300 {
             let nt = rng.random_range(1..=5);
             let np = rng.random_range(1..=5);
             let (w0, edges) = random(&mut rng, nt, np, 0.7);
-            solver.solve(&w0, np, &edges, Variant::JpdaStar, 1 << 20, &mut b0, &mut b);
+            solver.solve(&w0, np, &edges, Variant::JpdaStar, 1 << 20, &mut m);
             let d = dense(&w0, np, &edges);
             let (star, plain) = (brute(&d, true), brute(&d, false));
-            check(&w0, np, &edges, &b0, &b, &star, 1e-12);
+            check(&w0, np, &edges, &m.beta0, &m.beta, &star, 1e-12);
             differs += star.iter().zip(&plain).any(|(a, b)| (a - b).abs() > 1e-6) as usize;
         }
         // The pruning must actually change something on shared clusters.
@@ -439,16 +540,16 @@ mod tests {
         // to the dense implementation of jpda.rs up to convergence.
         let mut rng = ChaCha8Rng::seed_from_u64(23);
         let mut solver = ClusterSolver::new();
-        let (mut b0, mut b) = (Vec::new(), Vec::new());
+        let mut m = Marginals::default();
         for _ in 0..100 {
             let nt = rng.random_range(2..=7);
             let np = rng.random_range(2..=8);
             let (w0, edges) = random(&mut rng, nt, np, 0.6);
-            let o = solver.solve(&w0, np, &edges, Variant::Jpda, 0, &mut b0, &mut b);
+            let o = solver.solve(&w0, np, &edges, Variant::Jpda, 0, &mut m);
             assert_eq!(o.method, Method::BeliefPropagation);
             let mut want = Vec::new();
             belief_propagation(&dense(&w0, np, &edges), 500, 1e-13, &mut want);
-            check(&w0, np, &edges, &b0, &b, &want, 1e-7);
+            check(&w0, np, &edges, &m.beta0, &m.beta, &want, 1e-7);
         }
     }
 
@@ -459,31 +560,33 @@ mod tests {
     fn bp_error_against_exact() {
         let mut rng = ChaCha8Rng::seed_from_u64(24);
         let mut solver = ClusterSolver::new();
-        let (mut b0, mut b) = (Vec::new(), Vec::new());
+        let mut m = Marginals::default();
         let (mut worst, mut sum, mut n) = (0.0f64, 0.0, 0.0);
         for _ in 0..200 {
             let nt = rng.random_range(2..=6);
             let np = rng.random_range(2..=7);
             let (w0, edges) = random(&mut rng, nt, np, 0.5);
-            solver.solve(&w0, np, &edges, Variant::Jpda, 0, &mut b0, &mut b);
+            solver.solve(&w0, np, &edges, Variant::Jpda, 0, &mut m);
             let mut want = Vec::new();
             exact(&dense(&w0, np, &edges), &mut want);
             let cols = np + 1;
-            for i in 0..nt {
-                let d = (b0[i] - want[i * cols]).abs();
+            for (i, b0) in m.beta0.iter().enumerate() {
+                let d = (b0 - want[i * cols]).abs();
                 worst = worst.max(d);
                 sum += d;
                 n += 1.0;
             }
             for (k, e) in edges.iter().enumerate() {
-                let d = (b[k] - want[e.track as usize * cols + e.plot as usize + 1]).abs();
+                let d = (m.beta[k] - want[e.track as usize * cols + e.plot as usize + 1]).abs();
                 worst = worst.max(d);
                 sum += d;
                 n += 1.0;
             }
         }
         let mean = sum / n;
-        eprintln!("sparse belief propagation vs exact: mean |Δβ| = {mean:.4}, max |Δβ| = {worst:.4} over {n} probabilities");
+        eprintln!(
+            "sparse belief propagation vs exact: mean |Δβ| = {mean:.4}, max |Δβ| = {worst:.4} over {n} probabilities"
+        );
         assert!(mean < 0.02 && worst < 0.25, "mean {mean} max {worst}");
     }
 
@@ -494,12 +597,18 @@ mod tests {
         let mut rng = ChaCha8Rng::seed_from_u64(25);
         let (w0, edges) = random(&mut rng, 200, 2000, 0.5);
         let mut solver = ClusterSolver::new();
-        let (mut b0, mut b) = (Vec::new(), Vec::new());
-        let o = solver.solve(&w0, 2000, &edges, Variant::JpdaStar, 20_000, &mut b0, &mut b);
+        let mut m = Marginals::default();
+        let o = solver.solve(&w0, 2000, &edges, Variant::JpdaStar, 20_000, &mut m);
         assert_eq!(o.method, Method::BeliefPropagation);
         assert!(o.work as usize * edges.len() <= BP_MAX_WORK.max(BP_MIN_ITER * edges.len()));
-        for i in 0..200 {
-            let s: f64 = b0[i] + edges.iter().zip(&b).filter(|(e, _)| e.track == i as u32).map(|(_, v)| v).sum::<f64>();
+        for (i, b0) in m.beta0.iter().enumerate() {
+            let s: f64 = b0
+                + edges
+                    .iter()
+                    .zip(&m.beta)
+                    .filter(|(e, _)| e.track == i as u32)
+                    .map(|(_, v)| v)
+                    .sum::<f64>();
             assert!((s - 1.0).abs() < 1e-9);
         }
     }

@@ -81,10 +81,19 @@ fn moved(g: &Gaussian, lead: f64) -> Gaussian {
 /// PDA update of the Gaussian `g` with `plots` and the no-plot
 /// probability `beta0`. Returns the updated Gaussian and
 /// ln Λ = ln((1 − Pd·Pg) + Σ_j Pd·N(ν_j; 0, S_j)/λ).
-pub fn pda_update(g: &Gaussian, plots: &[PdaPlot], beta0: f64, params: &PdaParams) -> Option<(Gaussian, f64)> {
+pub fn pda_update(
+    g: &Gaussian,
+    plots: &[PdaPlot],
+    beta0: f64,
+    params: &PdaParams,
+) -> Option<(Gaussian, f64)> {
     // ln Λ by a running log-sum-exp: plot terms are large when λ is small.
     let miss = (1.0 - params.pd * params.pg).max(0.0);
-    let (mut top, mut acc) = if miss > 0.0 { (miss.ln(), 1.0) } else { (f64::NEG_INFINITY, 0.0) };
+    let (mut top, mut acc) = if miss > 0.0 {
+        (miss.ln(), 1.0)
+    } else {
+        (f64::NEG_INFINITY, 0.0)
+    };
     let ln_pd_over_l = params.pd.ln() - params.lambda.ln();
     let mut sum_beta = 0.0;
     let mut rbar = Matrix2::zeros();
@@ -101,7 +110,7 @@ pub fn pda_update(g: &Gaussian, plots: &[PdaPlot], beta0: f64, params: &PdaParam
         rbar += p.r * p.beta;
     }
     let ln_lambda = top + acc.ln();
-    if !(sum_beta > 0.0) {
+    if sum_beta.is_nan() || sum_beta <= 0.0 {
         return ln_lambda.is_finite().then_some((*g, ln_lambda));
     }
     let rbar = rbar / sum_beta;
@@ -124,7 +133,10 @@ pub fn pda_update(g: &Gaussian, plots: &[PdaPlot], beta0: f64, params: &PdaParam
     let a = g.p - k * g.p.fixed_rows::<2>(0);
     let pc = a - a.fixed_columns::<2>(0) * k.transpose() + k * rbar * k.transpose();
     let p: StateCov = g.p * beta0 + pc * (1.0 - beta0) + k * spread * k.transpose();
-    let out = Gaussian { x, p: (p + p.transpose()) * 0.5 };
+    let out = Gaussian {
+        x,
+        p: (p + p.transpose()) * 0.5,
+    };
     if !(ln_lambda.is_finite() && out.x.iter().chain(out.p.iter()).all(|v| v.is_finite())) {
         return None;
     }
@@ -135,14 +147,20 @@ pub fn pda_update(g: &Gaussian, plots: &[PdaPlot], beta0: f64, params: &PdaParam
 /// predicted model probabilities c̄). A model whose update fails keeps its
 /// prediction and drops to probability 0 for this scan, as in
 /// [`Imm::update`]; `None` if every model fails.
-pub fn imm_pda_update(imm: &Imm, pred: &ImmState, plots: &[PdaPlot], beta0: f64, params: &PdaParams) -> Option<ImmState> {
+pub fn imm_pda_update(
+    imm: &Imm,
+    pred: &ImmState,
+    plots: &[PdaPlot],
+    beta0: f64,
+    params: &PdaParams,
+) -> Option<ImmState> {
     let n = imm.n_models();
     let mut out = *pred;
     let mut log_w = [f64::NEG_INFINITY; MAX_MODELS];
-    for m in 0..n {
-        if let Some((g, ln_l)) = pda_update(&pred.comps[m], plots, beta0, params) {
-            out.comps[m] = g;
-            log_w[m] = pred.mu[m].ln() + ln_l;
+    for ((comp, lw), mu) in out.comps.iter_mut().zip(&mut log_w).zip(pred.mu).take(n) {
+        if let Some((g, ln_l)) = pda_update(comp, plots, beta0, params) {
+            *comp = g;
+            *lw = mu.ln() + ln_l;
         }
     }
     let max = log_w[..n].iter().copied().fold(f64::NEG_INFINITY, f64::max);
@@ -150,8 +168,8 @@ pub fn imm_pda_update(imm: &Imm, pred: &ImmState, plots: &[PdaPlot], beta0: f64,
         return None;
     }
     out.mu = [0.0; MAX_MODELS];
-    for m in 0..n {
-        out.mu[m] = (log_w[m] - max).exp();
+    for (m, lw) in out.mu.iter_mut().zip(log_w).take(n) {
+        *m = (lw - max).exp();
     }
     let sum: f64 = out.mu.iter().sum();
     out.mu.iter_mut().for_each(|m| *m /= sum);
@@ -178,7 +196,11 @@ mod tests {
         Gaussian { x, p }
     }
 
-    const PARAMS: PdaParams = PdaParams { pd: 0.9, pg: 0.999, lambda: 1e-6 };
+    const PARAMS: PdaParams = PdaParams {
+        pd: 0.9,
+        pg: 0.999,
+        lambda: 1e-6,
+    };
 
     /// Definition: with one plot and β₀ = 0 the PDAF is the Kalman filter
     /// (Bar-Shalom, Daum & Huang 2009: the spread term vanishes and
@@ -189,7 +211,12 @@ mod tests {
         let z = Vector2::new(112.0, -41.0);
         let r = Matrix2::new(144.0, 10.0, 10.0, 300.0);
         let (k, _) = kalman_update(&g, &z, &r).unwrap();
-        let plot = PdaPlot { z, r, beta: 1.0, lead_s: 0.0 };
+        let plot = PdaPlot {
+            z,
+            r,
+            beta: 1.0,
+            lead_s: 0.0,
+        };
         let (p, _) = pda_update(&g, &[plot], 0.0, &PARAMS).unwrap();
         for (a, b) in p.x.iter().zip(k.x.iter()) {
             assert!((a - b).abs() < 1e-9 * b.abs().max(1.0));
@@ -205,8 +232,18 @@ mod tests {
     fn no_plot_is_the_prediction() {
         let g = prior();
         let plots = [
-            PdaPlot { z: Vector2::new(130.0, -20.0), r: Matrix2::identity() * 100.0, beta: 0.0, lead_s: 0.01 },
-            PdaPlot { z: Vector2::new(80.0, -60.0), r: Matrix2::identity() * 120.0, beta: 0.0, lead_s: -0.02 },
+            PdaPlot {
+                z: Vector2::new(130.0, -20.0),
+                r: Matrix2::identity() * 100.0,
+                beta: 0.0,
+                lead_s: 0.01,
+            },
+            PdaPlot {
+                z: Vector2::new(80.0, -60.0),
+                r: Matrix2::identity() * 120.0,
+                beta: 0.0,
+                lead_s: -0.02,
+            },
         ];
         let (p, ln_l) = pda_update(&g, &plots, 1.0, &PARAMS).unwrap();
         assert_eq!(p, g);
@@ -221,7 +258,12 @@ mod tests {
         let g = prior();
         let lead = 0.12;
         let z = Vector2::new(g.x[0] + g.x[2] * lead, g.x[1] + g.x[3] * lead);
-        let plot = PdaPlot { z, r: Matrix2::identity() * 100.0, beta: 1.0, lead_s: lead };
+        let plot = PdaPlot {
+            z,
+            r: Matrix2::identity() * 100.0,
+            beta: 1.0,
+            lead_s: lead,
+        };
         let (p, _) = pda_update(&g, &[plot], 0.0, &PARAMS).unwrap();
         assert!((p.x - g.x).norm() < 1e-12);
     }
@@ -229,12 +271,26 @@ mod tests {
     /// Definition: IMM-PDA with one model is the PDA update with μ = 1.
     #[test]
     fn one_model_imm_is_pda() {
-        let imm = Imm::new(&[Motion::ConstantVelocity { accel_psd: 0.1 }], crate::engine::imm::Switching::Sojourn([60.0, 1.0, 1.0])).unwrap();
+        let imm = Imm::new(
+            &[Motion::ConstantVelocity { accel_psd: 0.1 }],
+            crate::engine::imm::Switching::Sojourn([60.0, 1.0, 1.0]),
+        )
+        .unwrap();
         let s = imm.init(prior(), None);
         let pred = imm.predict(&s, 2.5);
         let plots = [
-            PdaPlot { z: Vector2::new(110.0, -45.0), r: Matrix2::identity() * 100.0, beta: 0.6, lead_s: 0.0 },
-            PdaPlot { z: Vector2::new(95.0, -30.0), r: Matrix2::identity() * 110.0, beta: 0.3, lead_s: 0.05 },
+            PdaPlot {
+                z: Vector2::new(110.0, -45.0),
+                r: Matrix2::identity() * 100.0,
+                beta: 0.6,
+                lead_s: 0.0,
+            },
+            PdaPlot {
+                z: Vector2::new(95.0, -30.0),
+                r: Matrix2::identity() * 110.0,
+                beta: 0.3,
+                lead_s: 0.05,
+            },
         ];
         let u = imm_pda_update(&imm, &pred, &plots, 0.1, &PARAMS).unwrap();
         let (g, _) = pda_update(&pred.comps[0], &plots, 0.1, &PARAMS).unwrap();

@@ -53,7 +53,10 @@ impl Pass {
             offset_m: (7.3 * k) % 20.0,
             transponder: false,
             clutter_per_scan: env_or("JPDA_CLUTTER", 40.0),
-            cross_en: (env_or("JPDA_CROSS_E", 6000.0), env_or("JPDA_CROSS_N", -6000.0)),
+            cross_en: (
+                env_or("JPDA_CROSS_E", 6000.0),
+                env_or("JPDA_CROSS_N", -6000.0),
+            ),
             speeds_kn: (10.0, env_or("JPDA_SPEED_B", 10.0)),
             company: false,
         }
@@ -72,7 +75,10 @@ impl Pass {
 }
 
 fn env_or(key: &str, default: f64) -> f64 {
-    std::env::var(key).ok().and_then(|s| s.parse().ok()).unwrap_or(default)
+    std::env::var(key)
+        .ok()
+        .and_then(|s| s.parse().ok())
+        .unwrap_or(default)
 }
 
 /// The scenario text: one radar (Pd 0.9, 2.5 s scans, 8 km coverage,
@@ -83,16 +89,34 @@ pub fn scenario_toml(p: &Pass, duration_s: f64) -> String {
     let (cross_e, cross_n) = p.cross_en;
     let ca = p.course_deg.to_radians();
     let cb = (p.course_deg + p.angle_deg).to_radians();
-    let (sa, sb) = (cross_e - v_a * CROSS_S * ca.sin(), cross_n - v_a * CROSS_S * ca.cos());
+    let (sa, sb) = (
+        cross_e - v_a * CROSS_S * ca.sin(),
+        cross_n - v_a * CROSS_S * ca.cos(),
+    );
     // Offset across the second course: its unit normal is (cos, −sin).
-    let (qb_e, qb_n) = (cross_e + p.offset_m * cb.cos() - v_b * CROSS_S * cb.sin(), cross_n - p.offset_m * cb.sin() - v_b * CROSS_S * cb.cos());
+    let (qb_e, qb_n) = (
+        cross_e + p.offset_m * cb.cos() - v_b * CROSS_S * cb.sin(),
+        cross_n - p.offset_m * cb.sin() - v_b * CROSS_S * cb.cos(),
+    );
     let (qb_e, qb_n, course_b, legs_b) = if p.company {
         let (e, n) = (sa + p.offset_m * ca.cos(), sb - p.offset_m * ca.sin());
-        (e, n, p.course_deg, format!("legs = [{{ leg = \"straight\", duration_s = {CROSS_S} }}, {{ leg = \"turn\", rate_deg_s = 1.0, angle_deg = {} }}]\n", p.angle_deg))
+        (
+            e,
+            n,
+            p.course_deg,
+            format!(
+                "legs = [{{ leg = \"straight\", duration_s = {CROSS_S} }}, {{ leg = \"turn\", rate_deg_s = 1.0, angle_deg = {} }}]\n",
+                p.angle_deg
+            ),
+        )
     } else {
         (qb_e, qb_n, p.course_deg + p.angle_deg, String::new())
     };
-    let transponder = if p.transponder { "mmsi = \"200100031\"\nclass = \"A\"\n" } else { "" };
+    let transponder = if p.transponder {
+        "mmsi = \"200100031\"\nclass = \"A\"\n"
+    } else {
+        ""
+    };
     format!(
         r#"
 [scenario]
@@ -154,7 +178,8 @@ pub fn make(p: &Pass, seed: u64) -> Generated {
 
 /// The tracker's output on a generated feed.
 pub fn track(g: &Generated, association: Association, prune: bool) -> Vec<TrackRecord> {
-    let mut cfg = Config::from_toml_str(&g.config_toml, "generated", &Default::default()).expect("config");
+    let mut cfg =
+        Config::from_toml_str(&g.config_toml, "generated", &Default::default()).expect("config");
     cfg.tracking.association = association;
     let mut engine = Engine::new(&cfg).expect("engine");
     engine.set_jpda_pruning(prune);
@@ -189,8 +214,13 @@ fn plane(frame: &LocalFrame, t: &TruthRecord) -> nalgebra::Vector2<f64> {
 }
 
 pub fn judge(g: &Generated, tracks: &[TrackRecord]) -> Verdict {
-    let cfg = Config::from_toml_str(&g.config_toml, "generated", &Default::default()).expect("config");
-    let frame = LocalFrame::new(Geodetic::new(cfg.site.lat_deg, cfg.site.lon_deg, cfg.site.height_m));
+    let cfg =
+        Config::from_toml_str(&g.config_toml, "generated", &Default::default()).expect("config");
+    let frame = LocalFrame::new(Geodetic::new(
+        cfg.site.lat_deg,
+        cfg.site.lon_deg,
+        cfg.site.height_m,
+    ));
     // Truth by instant: both vessels' positions.
     let mut by_time: BTreeMap<_, Vec<&TruthRecord>> = BTreeMap::new();
     for t in &g.truth {
@@ -213,7 +243,16 @@ pub fn judge(g: &Generated, tracks: &[TrackRecord]) -> Verdict {
     let report = score(&apart, tracks, &frame, &ScoreOptions::default()).expect("score");
     if std::env::var("JPDA_DEBUG").is_ok() {
         for v in &report.per_vessel {
-            eprintln!("  {} instants {} assigned {} switches {} breaks {} confirm {:?} tracks {:?}", v.vessel, v.instants, v.assigned, v.id_switches, v.track_breaks, v.time_to_confirm_s, v.tracks);
+            eprintln!(
+                "  {} instants {} assigned {} switches {} breaks {} confirm {:?} tracks {:?}",
+                v.vessel,
+                v.instants,
+                v.assigned,
+                v.id_switches,
+                v.track_breaks,
+                v.time_to_confirm_s,
+                v.tracks
+            );
         }
     }
     let mut kept = report.per_vessel.len() == 2;
@@ -223,7 +262,9 @@ pub fn judge(g: &Generated, tracks: &[TrackRecord]) -> Verdict {
         swapped |= v.id_switches > 0;
         let lead = v.time_to_confirm_s.map(|s| s.round() as usize);
         // Assigned at every instant from the first assignment on.
-        kept &= v.id_switches == 0 && v.track_breaks == 0 && lead.is_some_and(|l| v.assigned + l == v.instants);
+        kept &= v.id_switches == 0
+            && v.track_breaks == 0
+            && lead.is_some_and(|l| v.assigned + l == v.instants);
         first_tracks.push(v.tracks.first().copied());
     }
     kept &= first_tracks.len() == 2 && first_tracks[0] != first_tracks[1];
@@ -232,10 +273,17 @@ pub fn judge(g: &Generated, tracks: &[TrackRecord]) -> Verdict {
     let (mut deficit, mut merged, mut n) = (0.0, 0usize, 0usize);
     if let [Some(a), Some(b)] = first_tracks[..] {
         let pos_at = |no: u64, t: skerry::time::Timestamp| {
-            tracks.iter().filter(|r| r.track == no && r.time <= t).last().filter(|r| r.status.is_firm()).map(|r| {
-                let dt = t.secs_since(r.time);
-                nalgebra::Vector2::new(r.east_m + r.vel_east_mps * dt, r.north_m + r.vel_north_mps * dt)
-            })
+            tracks
+                .iter()
+                .rfind(|r| r.track == no && r.time <= t)
+                .filter(|r| r.status.is_firm())
+                .map(|r| {
+                    let dt = t.secs_since(r.time);
+                    nalgebra::Vector2::new(
+                        r.east_m + r.vel_east_mps * dt,
+                        r.north_m + r.vel_north_mps * dt,
+                    )
+                })
         };
         for &(t, d) in &close {
             if let (Some(pa), Some(pb)) = (pos_at(a, t), pos_at(b, t)) {
@@ -247,7 +295,12 @@ pub fn judge(g: &Generated, tracks: &[TrackRecord]) -> Verdict {
         }
     }
     let n = n.max(1) as f64;
-    Verdict { kept, swapped, separation_deficit_m: deficit / n, merged_fraction: merged as f64 / n }
+    Verdict {
+        kept,
+        swapped,
+        separation_deficit_m: deficit / n,
+        merged_fraction: merged as f64 / n,
+    }
 }
 
 /// Summary over seeds.
@@ -297,7 +350,10 @@ pub fn campaign(seeds: std::ops::Range<u64>, pass: impl Fn(u64) -> Pass) -> [Tal
             judge(&g, &track(&g, Association::Jpda, true)),
         ];
         if std::env::var("JPDA_FAILS").is_ok() && v.iter().any(|v| !v.kept) {
-            eprintln!("seed {seed} angle {} offset {:.1}: kept gnn {} jpda {} star {}", p.angle_deg, p.offset_m, v[0].kept, v[1].kept, v[2].kept);
+            eprintln!(
+                "seed {seed} angle {} offset {:.1}: kept gnn {} jpda {} star {}",
+                p.angle_deg, p.offset_m, v[0].kept, v[1].kept, v[2].kept
+            );
         }
         for (t, v) in t.iter_mut().zip(&v) {
             t.add(v);
