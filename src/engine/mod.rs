@@ -42,6 +42,8 @@ mod identity;
 mod jpda_batch;
 pub mod jpda_cluster;
 pub mod pda;
+
+pub use jpda_batch::JpdaCounters;
 pub mod measure;
 pub mod sensors;
 pub mod track;
