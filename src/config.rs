@@ -285,12 +285,65 @@ mod serve_default {
     }
 }
 
+/// `[record]`: recording of every accepted record, and the engine
+/// snapshots that make a warm restart possible (CONTRACT.md §7). The
+/// section is absent by default: nothing is recorded.
 #[derive(Clone, Debug, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct RecordConfig {
+    /// Folder of the hourly recording files `YYYY-MM-DDTHH.jsonl` and of
+    /// the snapshots.
     pub dir: String,
-    #[serde(flatten)]
-    pub more: HashMap<String, toml::Value>,
+    /// Seconds between fsyncs of the open recording file (lines are
+    /// flushed to the operating system after every batch).
+    #[serde(default = "RecordConfig::fsync_interval_s")]
+    pub fsync_interval_s: f64,
+    /// Records held for the writer; when it is full (slow or failing
+    /// disk), records are not recorded and are counted, and tracking goes
+    /// on.
+    #[serde(default = "RecordConfig::queue")]
+    pub queue: usize,
+    /// Recording files whose hour ended more than this many hours ago are
+    /// deleted, oldest first.
+    #[serde(default = "RecordConfig::keep_hours")]
+    pub keep_hours: f64,
+    /// Most bytes the recording files may take together; beyond it the
+    /// oldest closed files are deleted. Absent: no limit.
+    #[serde(default)]
+    pub max_bytes: Option<u64>,
+    /// Seconds of wall-clock time between engine snapshots; 0 turns them
+    /// off.
+    #[serde(default = "RecordConfig::snapshot_interval_s")]
+    pub snapshot_interval_s: f64,
+    /// How many of the newest snapshots are kept.
+    #[serde(default = "RecordConfig::snapshot_keep")]
+    pub snapshot_keep: usize,
+    /// Restore the newest snapshot and the recording after it on start.
+    #[serde(default = "RecordConfig::restore")]
+    pub restore: bool,
+}
+
+impl RecordConfig {
+    pub fn fsync_interval_s() -> f64 {
+        1.0
+    }
+    pub fn queue() -> usize {
+        65_536
+    }
+    /// 30 days: a common retention period for surveillance recordings
+    /// (common practice; the local authority sets the real figure).
+    pub fn keep_hours() -> f64 {
+        720.0
+    }
+    pub fn snapshot_interval_s() -> f64 {
+        60.0
+    }
+    pub fn snapshot_keep() -> usize {
+        3
+    }
+    pub fn restore() -> bool {
+        true
+    }
 }
 
 impl Config {
@@ -421,6 +474,29 @@ impl Config {
         if t.model_sojourn_s.iter().any(|v| !(v.is_finite() && *v > 0.0)) {
             return bad("tracking.model_sojourn_s", "each must be a positive number of seconds");
         }
+        if let Some(r) = &self.record {
+            if r.dir.trim().is_empty() {
+                return bad("record.dir", "must name a folder");
+            }
+            if !(r.fsync_interval_s.is_finite() && r.fsync_interval_s > 0.0) {
+                return bad("record.fsync_interval_s", format!("must be a positive number of seconds (got {})", r.fsync_interval_s));
+            }
+            if r.queue == 0 {
+                return bad("record.queue", "must be at least 1");
+            }
+            if !(r.keep_hours.is_finite() && r.keep_hours > 0.0) {
+                return bad("record.keep_hours", format!("must be a positive number of hours (got {})", r.keep_hours));
+            }
+            if r.max_bytes == Some(0) {
+                return bad("record.max_bytes", "must be at least 1 (leave it out for no limit)");
+            }
+            if !(r.snapshot_interval_s.is_finite() && r.snapshot_interval_s >= 0.0) {
+                return bad("record.snapshot_interval_s", format!("must be ≥ 0 seconds, 0 for no snapshots (got {})", r.snapshot_interval_s));
+            }
+            if r.snapshot_keep == 0 {
+                return bad("record.snapshot_keep", "must be at least 1");
+            }
+        }
         Ok(())
     }
 
@@ -498,6 +574,29 @@ association = "gnn"
         let c = Config::from_toml_str(GOOD, "t", &env).unwrap();
         assert_eq!(c.serve.udp_addr, "127.0.0.1:5000");
         assert_eq!(c.tracking.confirm_hits, 2);
+    }
+
+    #[test]
+    fn record_section_defaults_and_checks() {
+        let c = load(GOOD).unwrap();
+        assert!(c.record.is_none(), "no [record]: nothing is recorded");
+        let c = load(&format!("{GOOD}\n[record]\ndir = \"/tmp/rec\"\n")).unwrap();
+        let r = c.record.unwrap();
+        assert_eq!((r.fsync_interval_s, r.keep_hours, r.max_bytes, r.snapshot_keep), (1.0, 720.0, None, 3));
+        for (line, key) in [
+            ("fsync_interval_s = 0.0", "record.fsync_interval_s"),
+            ("keep_hours = -1.0", "record.keep_hours"),
+            ("max_bytes = 0", "record.max_bytes"),
+            ("snapshot_keep = 0", "record.snapshot_keep"),
+            ("queue = 0", "record.queue"),
+            ("snapshot_interval_s = -5.0", "record.snapshot_interval_s"),
+            ("keep_hour = 3.0", "keep_hour"),
+        ] {
+            let e = load(&format!("{GOOD}\n[record]\ndir = \"/tmp/rec\"\n{line}\n")).unwrap_err().to_string();
+            assert!(e.contains(key), "{line}: {e}");
+        }
+        let e = load(&format!("{GOOD}\n[record]\ndir = \"\"\n")).unwrap_err().to_string();
+        assert!(e.contains("record.dir"), "{e}");
     }
 
     #[test]
