@@ -9,6 +9,7 @@ pub mod engine;
 pub mod feed;
 pub mod geo;
 pub mod offline;
+pub mod recording;
 pub mod reorder;
 pub mod score;
 pub mod sim;

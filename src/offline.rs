@@ -6,6 +6,12 @@
 //! times keep file order), and screened for exact duplicates. Bad lines
 //! are counted per sensor and reason and reported on standard error with
 //! their file and line, a few at a time; they never stop the run.
+//!
+//! A folder stands for its recording files (`YYYY-MM-DDTHH.jsonl`,
+//! CONTRACT.md §7) in name order. A torn final line (a file without its
+//! final newline whose last line is not whole JSON, as a crash or a full
+//! disk leaves it) is reported by file and line, skipped, and not counted
+//! as a rejected record.
 
 use crate::config::Config;
 use crate::feed::screen::median_time;
@@ -20,6 +26,8 @@ const SHOWN_REJECTS: usize = 10;
 pub enum ReadError {
     #[error("{path}: cannot read: {source}")]
     Io { path: String, source: std::io::Error },
+    #[error(transparent)]
+    Path(#[from] crate::recording::FeedPathError),
 }
 
 /// One rejected line, for the report.
@@ -30,6 +38,13 @@ pub struct BadLine {
     pub reject: Reject,
 }
 
+/// A torn final line, for the report.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct TornLine {
+    pub file: PathBuf,
+    pub line: usize,
+}
+
 /// A decoded, screened and ordered feed.
 #[derive(Debug, Default)]
 pub struct Feed {
@@ -37,6 +52,8 @@ pub struct Feed {
     pub counts: FeedCounts,
     pub bad: Vec<BadLine>,
     pub lines: usize,
+    /// Torn final lines, skipped.
+    pub torn: Vec<TornLine>,
 }
 
 /// The lines of a byte buffer, without their line ends. A final line with
@@ -49,8 +66,14 @@ pub fn split_lines(bytes: &[u8]) -> impl Iterator<Item = &[u8]> {
 /// Decodes one file's bytes, appending accepted records (with their file
 /// order) to `out`.
 pub fn decode_bytes(bytes: &[u8], file: &Path, sensors: &SensorTable, feed: &mut Feed, out: &mut Vec<Record>) {
+    // Only the last line of a file cut short can be torn.
+    let last = (!bytes.is_empty() && !bytes.ends_with(b"\n")).then(|| split_lines(bytes).count());
     for (i, line) in split_lines(bytes).enumerate() {
         if line.iter().all(u8::is_ascii_whitespace) {
+            continue;
+        }
+        if last == Some(i + 1) && crate::recording::is_torn(line) {
+            feed.torn.push(TornLine { file: file.to_path_buf(), line: i + 1 });
             continue;
         }
         feed.lines += 1;
@@ -81,12 +104,13 @@ pub fn feed_order(a: &Record, b: &Record) -> std::cmp::Ordering {
         .then_with(|| a.content_hash().cmp(&b.content_hash()))
 }
 
-/// Reads, decodes, screens and orders the feed files.
+/// Reads, decodes, screens and orders the feed files (a folder: its
+/// recording files).
 pub fn read_feeds(paths: &[PathBuf], cfg: &Config) -> Result<Feed, ReadError> {
     let sensors = cfg.sensor_table();
     let mut feed = Feed::default();
     let mut decoded = Vec::new();
-    for p in paths {
+    for p in &crate::recording::expand_feed_paths(paths)? {
         let bytes = std::fs::read(p).map_err(|source| ReadError::Io { path: p.display().to_string(), source })?;
         decode_bytes(&bytes, p, &sensors, &mut feed, &mut decoded);
     }
@@ -109,6 +133,9 @@ pub fn read_feeds(paths: &[PathBuf], cfg: &Config) -> Result<Feed, ReadError> {
 
 /// Prints the first bad lines and the counts to standard error.
 pub fn report_rejects(feed: &Feed, sensors: &SensorTable) {
+    for t in &feed.torn {
+        eprintln!("{}:{}: torn final line (no newline at the end, not whole JSON): skipped", t.file.display(), t.line);
+    }
     for b in feed.bad.iter().take(SHOWN_REJECTS) {
         let who = b.reject.sensor.map(|s| format!(" (sensor {})", sensors.name(s))).unwrap_or_default();
         eprintln!("{}:{}: rejected: {}{}", b.file.display(), b.line, b.reject.reason, who);

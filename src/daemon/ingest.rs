@@ -149,6 +149,10 @@ pub struct IngestContext {
     /// Tracks the ingest tasks and streams, so the reorder task knows when
     /// the last record has been queued.
     pub tracker: TaskTracker,
+    /// The recording writer's queue, when `[record]` is set: every
+    /// accepted record is offered to it (late ones too: lateness is
+    /// judged later, by the reorder buffer).
+    pub recorder: Option<super::record::Recorder>,
 }
 
 /// Counts of one batch of input (a datagram, a stream).
@@ -209,10 +213,15 @@ impl IngestContext {
         if rec.time().secs_since(now).abs() > self.max_time_offset_s {
             return self.rejected(&Reject { reason: RejectReason::ImplausibleTime, sensor: Some(s) }, src, now, tally);
         }
+        // A copy for the recording (no heap: a report's id is shared).
+        let copy = self.recorder.as_ref().map(|_| rec.clone());
         match self.tx.try_send(Arrival { rec, at: now }) {
             Ok(()) => {
                 c.accepted.fetch_add(1, Relaxed);
                 tally.accepted += 1;
+                if let (Some(r), Some(rec)) = (&self.recorder, copy) {
+                    r.offer(rec, now);
+                }
             }
             Err(_) => {
                 self.metrics.dropped_ingest_queue.fetch_add(1, Relaxed);

@@ -99,6 +99,8 @@ pub struct Metrics {
     pub silent_scans: f64,
     pub transponder_silent_s: f64,
     pub queue_warn_fraction: f64,
+    /// The recording's figures (`[record]`).
+    pub record: super::record::RecordStats,
 }
 
 impl Metrics {
@@ -135,6 +137,7 @@ impl Metrics {
             silent_scans: cfg.serve.silent_scans,
             transponder_silent_s: cfg.serve.transponder_silent_s,
             queue_warn_fraction: cfg.serve.queue_warn_fraction,
+            record: super::record::RecordStats::new(cfg.record.as_ref()),
         }
     }
 
@@ -227,6 +230,7 @@ impl Metrics {
                 out.push(format!("{name} near full ({depth} of {cap})"));
             }
         }
+        out.extend(self.record.degraded_reason());
         out
     }
 
@@ -319,6 +323,7 @@ impl Metrics {
         if let Some(r) = self.released() {
             simple(&mut o, "skerry_feed_time_seconds", "gauge", "Feed time released to the engine (s since the epoch).", num(r.unix_secs_f64()));
         }
+        self.record.render(&mut o);
         let reasons = self.degraded_reasons(now);
         simple(&mut o, "skerry_healthy", "gauge", "1 when /healthz says ok, 0 when degraded.", u8::from(reasons.is_empty()).to_string());
         simple(&mut o, "skerry_start_time_seconds", "gauge", "When the daemon started (s since the epoch).", num(self.started.unix_secs_f64()));

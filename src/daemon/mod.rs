@@ -14,15 +14,16 @@
 //! (the task around the pure [`crate::reorder`] buffer), [`engine_task`]
 //! (the sole owner of the tracks), [`publisher`] (fan-out), [`grpc`]
 //! (picture and health services), [`http`] (metrics and health check),
-//! [`metrics`] (the shared figures), [`proto`] (generated code and
-//! conversions), and the command-line edges [`serve`], [`replay`],
-//! [`watch`].
+//! [`metrics`] (the shared figures), [`record`] (the recording writer,
+//! with `[record] dir` set), [`proto`] (generated code and conversions),
+//! and the command-line edges [`serve`], [`replay`], [`watch`].
 //!
 //! [`run`] starts the whole service on sockets bound beforehand (port 0 in
 //! tests) and returns when `shutdown` is cancelled and the service has
 //! stopped in order: ingest stops, the reorder buffer is drained through
 //! the engine (`finish`), the subscribers get what is queued for them (for
-//! up to `serve.shutdown_flush_s`), and the servers close.
+//! up to `serve.shutdown_flush_s`), the servers close, and the recording
+//! writer writes what it holds and closes its file.
 
 pub mod clock;
 pub mod engine_task;
@@ -32,6 +33,7 @@ pub mod ingest;
 pub mod metrics;
 pub mod proto;
 pub mod publisher;
+pub mod record;
 pub mod replay;
 pub mod sequencer;
 pub mod serve;
@@ -78,6 +80,8 @@ pub enum DaemonError {
     Http(std::io::Error),
     #[error("a daemon task failed: {0}")]
     Task(#[from] tokio::task::JoinError),
+    #[error("cannot start the recording writer: {0}")]
+    Record(std::io::Error),
 }
 
 /// The daemon's sockets, bound before [`run`] so that tests can use port 0
@@ -169,6 +173,10 @@ pub struct RunSummary {
     pub processed: u64,
     /// Track records the engine made.
     pub track_records: u64,
+    /// Accepted records written to the recording (with `[record]`).
+    pub recorded: u64,
+    /// Accepted records the recording lost (queue full, write errors).
+    pub not_recorded: u64,
 }
 
 impl RunSummary {
@@ -252,11 +260,30 @@ pub async fn run(cfg: Config, listeners: Listeners, shutdown: CancellationToken)
 
 /// [`run`] with any [`Tracker`].
 pub async fn run_with<T: Tracker>(cfg: Config, listeners: Listeners, shutdown: CancellationToken, tracker: T) -> Result<RunSummary, DaemonError> {
+    run_inner(cfg, listeners, shutdown, tracker, None).await
+}
+
+/// [`run_with`], recording (when `[record]` is set) through `disk`
+/// instead of the file system: tests inject failing disks.
+pub async fn run_with_disk<T: Tracker>(cfg: Config, listeners: Listeners, shutdown: CancellationToken, tracker: T, disk: Box<dyn record::Disk>) -> Result<RunSummary, DaemonError> {
+    run_inner(cfg, listeners, shutdown, tracker, Some(disk)).await
+}
+
+async fn run_inner<T: Tracker>(cfg: Config, listeners: Listeners, shutdown: CancellationToken, tracker: T, disk: Option<Box<dyn record::Disk>>) -> Result<RunSummary, DaemonError> {
     let allow = check_settings(&cfg)?;
     let addrs = listeners.local_addrs().map_err(DaemonError::Http)?;
     let s = cfg.serve.clone();
     let clock = DaemonClock::start();
     let metrics = Arc::new(Metrics::new(&cfg, clock.now()));
+    // Ingest → recording writer: bounded, filled with try_send.
+    let (recorder, recording) = match &cfg.record {
+        Some(r) => {
+            let disk = disk.unwrap_or_else(|| Box::new(record::FsDisk::new(&r.dir)));
+            let (rec, handle) = record::start(r, disk, cfg.sensor_table(), metrics.clone(), clock, s.bad_input_log_interval_s).map_err(DaemonError::Record)?;
+            (Some(rec), Some(handle))
+        }
+        None => (None, None),
+    };
 
     // Ingest → reorder: bounded, filled with try_send (ingest never waits).
     let (arrival_tx, arrival_rx) = mpsc::channel(s.ingest_queue);
@@ -281,6 +308,7 @@ pub async fn run_with<T: Tracker>(cfg: Config, listeners: Listeners, shutdown: C
         log: Mutex::new(LogLimiter::new(s.bad_input_log_interval_s)),
         cancel: shutdown.clone(),
         tracker: ingest_tasks.clone(),
+        recorder,
     });
     ingest_tasks.spawn(ingest::udp_task(ctx.clone(), listeners.udp));
     ingest_tasks.close();
@@ -352,6 +380,10 @@ pub async fn run_with<T: Tracker>(cfg: Config, listeners: Listeners, shutdown: C
     tasks.close();
     tasks.wait().await;
     drop(ctx);
+    // Ingest stopped before the engine finished: nothing more is queued.
+    if let Some(r) = recording {
+        r.finish().await;
+    }
 
     let t = metrics.totals();
     let li = metrics::reason_index("late");
@@ -366,6 +398,8 @@ pub async fn run_with<T: Tracker>(cfg: Config, listeners: Listeners, shutdown: C
         dropped: metrics.dropped_reorder_full.load(Relaxed),
         processed: t.processed,
         track_records: engine_summary.track_records,
+        recorded: metrics.record.recorded.load(Relaxed),
+        not_recorded: metrics.record.not_recorded(),
     };
     tracing::info!(
         received = summary.received,
@@ -377,6 +411,8 @@ pub async fn run_with<T: Tracker>(cfg: Config, listeners: Listeners, shutdown: C
         ingest_queue_dropped = metrics.dropped_ingest_queue.load(Relaxed),
         processed = summary.processed,
         track_records = summary.track_records,
+        recorded = summary.recorded,
+        not_recorded = summary.not_recorded,
         "skerry stopped"
     );
     Ok(summary)

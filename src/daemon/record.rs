@@ -1,0 +1,610 @@
+//! The recording writer (CONTRACT.md §7): with `[record] dir` set, every
+//! record accepted at ingest, from any input, is appended to the hour's
+//! recording file as a feed line with its `received` time.
+//!
+//! ```text
+//!  ingest (after the checks, before the reorder buffer, so late records
+//!    │      are recorded too)
+//!    │ try_send: never waits; a full queue counts `queue_full`
+//!    ▼
+//!  bounded queue (`record.queue` records) ──► writer thread ──► Disk
+//! ```
+//!
+//! The writer runs on its own OS thread rather than a tokio task: file
+//! writes and fsync block, and a slow or hung disk must stall only the
+//! recording, never a runtime worker that ingest and the engine share.
+//! It wakes on the first queued record, waits [`LINGER`] so that a burst
+//! collects, formats everything queued into one buffer and writes it in
+//! one call (so every batch reaches the operating system when it is
+//! written); the open file is fsynced every `record.fsync_interval_s`.
+//!
+//! # Files
+//!
+//! One file per UTC hour of `received`, `YYYY-MM-DDTHH.jsonl`
+//! ([`crate::recording`]), opened for append, so a restart within the
+//! hour continues the same file. When the hour changes (a record of a
+//! later hour, or the clock alone) the open file is fsynced and closed,
+//! the next record opens the next one, and retention runs; it also runs
+//! at start. Retention deletes only files named like recordings, never
+//! the open one ([`crate::recording::to_delete`]). Records from two inputs
+//! may reach the queue a few microseconds out of order: a record of an
+//! hour before the newest file opened goes into that newest file, so a
+//! file is never reopened for an hour that was already left behind by a
+//! later record.
+//!
+//! # Faults
+//!
+//! Every file operation goes through [`Disk`] (tests inject a failing or
+//! full disk). A failed write never stops tracking: the records not
+//! written are counted (`write_error`), `/healthz` is degraded with the
+//! reason until a write succeeds again, and errors are logged at most once
+//! per `serve.bad_input_log_interval_s`. A write that failed part-way may
+//! have left part of a line in the file; before the next write the writer
+//! looks at the file's last byte and, if it is not a newline, writes one,
+//! so the torn piece stands as a line of its own and the next record
+//! starts on a fresh line. The same check is made when an existing file
+//! is opened (a crash in the middle of a line).
+
+use super::clock::DaemonClock;
+use super::ingest::LogLimiter;
+use super::metrics::Metrics;
+use crate::config::RecordConfig;
+use crate::feed::{Record, SensorTable};
+use crate::recording::{RecordingFile, file_name, format_line, hour_index, to_delete};
+use crate::time::Timestamp;
+use std::fmt::Write as _;
+use std::fs::File;
+use std::io::{self, Read, Seek, SeekFrom, Write};
+use std::path::PathBuf;
+use std::sync::atomic::Ordering::{Acquire, Relaxed, Release};
+use std::sync::atomic::{AtomicBool, AtomicU64};
+use std::sync::mpsc::{Receiver, RecvTimeoutError, SyncSender, TrySendError};
+use std::sync::{Arc, Mutex};
+use std::time::Duration;
+
+/// How long the writer lets a burst collect after the first record wakes
+/// it: about 50 writes a second at any rate, instead of one per datagram.
+pub const LINGER: Duration = Duration::from_millis(20);
+
+/// How often an idle writer looks at the clock (hour change, fsync, stop).
+const TICK: Duration = Duration::from_millis(100);
+
+/// Most records formatted into one write.
+const MAX_BATCH: usize = 16_384;
+
+/// A record to record.
+#[derive(Clone, Debug)]
+pub struct Entry {
+    pub rec: Record,
+    /// When the daemon received it (daemon clock).
+    pub received: Timestamp,
+}
+
+/// What [`Disk::open`] found.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Opened {
+    /// The file was there before.
+    pub existed: bool,
+    /// Its length when opened (bytes).
+    pub len: u64,
+}
+
+/// A write that stopped part-way: `written` bytes of the buffer reached
+/// the file before `error`.
+#[derive(Debug)]
+pub struct WriteFault {
+    pub written: usize,
+    pub error: io::Error,
+}
+
+/// The file operations of the writer, on one folder. At most one file is
+/// open (the current file) at a time.
+pub trait Disk: Send + 'static {
+    /// Every regular file in the folder, with its size; an absent folder
+    /// has none.
+    fn list(&mut self) -> io::Result<Vec<(String, u64)>>;
+    /// Opens `name` for append (creating it, and the folder, if needed)
+    /// as the current file.
+    fn open(&mut self, name: &str) -> io::Result<Opened>;
+    /// Whether the current file is empty or ends in `\n`.
+    fn ends_with_newline(&mut self) -> io::Result<bool>;
+    /// Appends all of `buf` to the current file.
+    fn write(&mut self, buf: &[u8]) -> Result<(), WriteFault>;
+    /// Makes what was written to the current file durable (fsync).
+    fn sync(&mut self) -> io::Result<()>;
+    /// Syncs and closes the current file, if any.
+    fn close(&mut self) -> io::Result<()>;
+    /// Deletes `name` from the folder.
+    fn remove(&mut self, name: &str) -> io::Result<()>;
+}
+
+/// [`Disk`] on the file system.
+pub struct FsDisk {
+    dir: PathBuf,
+    file: Option<File>,
+}
+
+impl FsDisk {
+    pub fn new(dir: impl Into<PathBuf>) -> FsDisk {
+        FsDisk { dir: dir.into(), file: None }
+    }
+
+    fn current(&mut self) -> io::Result<&mut File> {
+        self.file.as_mut().ok_or_else(|| io::Error::other("no recording file is open"))
+    }
+}
+
+impl Disk for FsDisk {
+    fn list(&mut self) -> io::Result<Vec<(String, u64)>> {
+        let rd = match std::fs::read_dir(&self.dir) {
+            Err(e) if e.kind() == io::ErrorKind::NotFound => return Ok(Vec::new()),
+            r => r?,
+        };
+        let mut out = Vec::new();
+        for e in rd {
+            let e = e?;
+            let Ok(name) = e.file_name().into_string() else { continue };
+            let md = e.metadata()?;
+            if md.is_file() {
+                out.push((name, md.len()));
+            }
+        }
+        Ok(out)
+    }
+
+    fn open(&mut self, name: &str) -> io::Result<Opened> {
+        self.file = None;
+        std::fs::create_dir_all(&self.dir)?;
+        let path = self.dir.join(name);
+        let existed = path.exists();
+        // Read too: the last byte is looked at after a fault.
+        let f = std::fs::OpenOptions::new().read(true).append(true).create(true).open(&path)?;
+        if !existed {
+            // A new file's name is durable only once its folder is synced.
+            if let Ok(d) = File::open(&self.dir) {
+                let _ = d.sync_all();
+            }
+        }
+        let len = f.metadata()?.len();
+        self.file = Some(f);
+        Ok(Opened { existed, len })
+    }
+
+    fn ends_with_newline(&mut self) -> io::Result<bool> {
+        let f = self.current()?;
+        if f.metadata()?.len() == 0 {
+            return Ok(true);
+        }
+        // In append mode every write goes to the end whatever the position.
+        f.seek(SeekFrom::End(-1))?;
+        let mut b = [0u8; 1];
+        f.read_exact(&mut b)?;
+        Ok(b[0] == b'\n')
+    }
+
+    fn write(&mut self, buf: &[u8]) -> Result<(), WriteFault> {
+        let f = self.current().map_err(|error| WriteFault { written: 0, error })?;
+        let mut written = 0;
+        while written < buf.len() {
+            match f.write(&buf[written..]) {
+                Ok(0) => return Err(WriteFault { written, error: io::ErrorKind::WriteZero.into() }),
+                Ok(n) => written += n,
+                Err(e) if e.kind() == io::ErrorKind::Interrupted => {}
+                Err(error) => return Err(WriteFault { written, error }),
+            }
+        }
+        Ok(())
+    }
+
+    fn sync(&mut self) -> io::Result<()> {
+        // sync_data: the data and the length needed to read it back.
+        self.current()?.sync_data()
+    }
+
+    fn close(&mut self) -> io::Result<()> {
+        match self.file.take() {
+            Some(f) => f.sync_data(),
+            None => Ok(()),
+        }
+    }
+
+    fn remove(&mut self, name: &str) -> io::Result<()> {
+        std::fs::remove_file(self.dir.join(name))
+    }
+}
+
+/// The recording's figures, part of the daemon's [`Metrics`].
+#[derive(Debug, Default)]
+pub struct RecordStats {
+    /// Recording is configured.
+    pub enabled: bool,
+    pub dir: String,
+    /// Records written to a recording file.
+    pub recorded: AtomicU64,
+    /// Not recorded: the writer's queue was full.
+    pub queue_full: AtomicU64,
+    /// Not recorded: a file could not be opened or written.
+    pub write_error: AtomicU64,
+    /// Bytes written to recording files.
+    pub bytes_written: AtomicU64,
+    /// Recording files in the folder, and their bytes (as of the last
+    /// retention pass, plus what was written since).
+    pub files: AtomicU64,
+    pub disk_bytes: AtomicU64,
+    pub files_deleted: AtomicU64,
+    /// While writes fail: why.
+    failing: Mutex<Option<String>>,
+}
+
+impl RecordStats {
+    pub fn new(cfg: Option<&RecordConfig>) -> RecordStats {
+        RecordStats { enabled: cfg.is_some(), dir: cfg.map(|c| c.dir.clone()).unwrap_or_default(), ..RecordStats::default() }
+    }
+
+    /// Why the recording is failing, if it is.
+    pub fn failing(&self) -> Option<String> {
+        self.failing.lock().ok().and_then(|f| f.clone())
+    }
+
+    fn set_failing(&self, why: Option<String>) {
+        if let Ok(mut f) = self.failing.lock() {
+            *f = why;
+        }
+    }
+
+    /// The `/healthz` reason while writes fail.
+    pub fn degraded_reason(&self) -> Option<String> {
+        self.failing().map(|why| format!("recording to {} failing: {why}", self.dir))
+    }
+
+    /// Records not recorded, all reasons.
+    pub fn not_recorded(&self) -> u64 {
+        self.queue_full.load(Relaxed) + self.write_error.load(Relaxed)
+    }
+
+    /// The recording's series in the Prometheus text format (nothing when
+    /// recording is off).
+    pub fn render(&self, o: &mut String) {
+        if !self.enabled {
+            return;
+        }
+        let _ = writeln!(o, "# HELP skerry_recorded_total Records written to the recording.\n# TYPE skerry_recorded_total counter\nskerry_recorded_total {}", self.recorded.load(Relaxed));
+        let _ = writeln!(o, "# HELP skerry_not_recorded_total Accepted records left out of the recording, by reason.\n# TYPE skerry_not_recorded_total counter");
+        let _ = writeln!(o, "skerry_not_recorded_total{{reason=\"queue_full\"}} {}", self.queue_full.load(Relaxed));
+        let _ = writeln!(o, "skerry_not_recorded_total{{reason=\"write_error\"}} {}", self.write_error.load(Relaxed));
+        let _ = writeln!(o, "# HELP skerry_record_bytes_total Bytes written to recording files.\n# TYPE skerry_record_bytes_total counter\nskerry_record_bytes_total {}", self.bytes_written.load(Relaxed));
+        let _ = writeln!(o, "# HELP skerry_record_files Recording files in the folder.\n# TYPE skerry_record_files gauge\nskerry_record_files {}", self.files.load(Relaxed));
+        let _ = writeln!(o, "# HELP skerry_record_disk_bytes Bytes of the recording files in the folder.\n# TYPE skerry_record_disk_bytes gauge\nskerry_record_disk_bytes {}", self.disk_bytes.load(Relaxed));
+        let _ = writeln!(o, "# HELP skerry_record_files_deleted_total Recording files deleted by retention.\n# TYPE skerry_record_files_deleted_total counter\nskerry_record_files_deleted_total {}", self.files_deleted.load(Relaxed));
+        let _ = writeln!(o, "# HELP skerry_record_failing 1 while recording writes fail.\n# TYPE skerry_record_failing gauge\nskerry_record_failing {}", u8::from(self.failing().is_some()));
+    }
+}
+
+/// The ingest side: offers accepted records to the writer.
+#[derive(Clone)]
+pub struct Recorder {
+    tx: SyncSender<Entry>,
+    metrics: Arc<Metrics>,
+}
+
+impl Recorder {
+    /// Queues `rec` for the recording, or counts it as not recorded.
+    /// Never waits.
+    pub fn offer(&self, rec: Record, received: Timestamp) {
+        match self.tx.try_send(Entry { rec, received }) {
+            Ok(()) => {}
+            Err(TrySendError::Full(_)) => {
+                self.metrics.record.queue_full.fetch_add(1, Relaxed);
+            }
+            // The writer is gone (it never stops before ingest does).
+            Err(TrySendError::Disconnected(_)) => {
+                self.metrics.record.write_error.fetch_add(1, Relaxed);
+            }
+        }
+    }
+}
+
+/// Stops the writer thread.
+pub struct RecordHandle {
+    stop: Arc<AtomicBool>,
+    thread: Option<std::thread::JoinHandle<()>>,
+}
+
+impl RecordHandle {
+    /// Call once ingest has stopped: the writer writes what is queued,
+    /// syncs and closes its file, and ends.
+    pub async fn finish(mut self) {
+        self.stop.store(true, Release);
+        if let Some(t) = self.thread.take() {
+            let _ = tokio::task::spawn_blocking(move || t.join()).await;
+        }
+    }
+}
+
+/// The writer's settings.
+#[derive(Clone, Debug)]
+pub struct WriterSettings {
+    pub fsync_interval_s: f64,
+    pub keep_hours: f64,
+    pub max_bytes: Option<u64>,
+    /// Errors are logged at most once per this many seconds.
+    pub log_interval_s: f64,
+}
+
+impl WriterSettings {
+    pub fn new(r: &RecordConfig, log_interval_s: f64) -> WriterSettings {
+        WriterSettings { fsync_interval_s: r.fsync_interval_s, keep_hours: r.keep_hours, max_bytes: r.max_bytes, log_interval_s }
+    }
+}
+
+struct OpenFile {
+    name: String,
+    hour: i64,
+}
+
+/// The writer's logic, driven by the writer thread with the time passed
+/// in (tests drive it directly with times of their own).
+pub struct Writer {
+    disk: Box<dyn Disk>,
+    sensors: SensorTable,
+    set: WriterSettings,
+    metrics: Arc<Metrics>,
+    open: Option<OpenFile>,
+    /// Hour of the newest file opened: no record goes to an older one.
+    newest: Option<i64>,
+    /// The open file may end inside a line (after a fault, or as found).
+    check_end: bool,
+    /// Written since the last fsync.
+    unsynced: bool,
+    last_sync: Timestamp,
+    failing: bool,
+    log: LogLimiter,
+    /// The batch being written, and where each of its lines ends.
+    buf: String,
+    ends: Vec<usize>,
+}
+
+impl Writer {
+    pub fn new(disk: Box<dyn Disk>, sensors: SensorTable, set: WriterSettings, metrics: Arc<Metrics>) -> Writer {
+        let log = LogLimiter::new(set.log_interval_s);
+        Writer {
+            disk,
+            sensors,
+            set,
+            metrics,
+            open: None,
+            newest: None,
+            check_end: false,
+            unsynced: false,
+            last_sync: Timestamp::from_unix_nanos(0),
+            failing: false,
+            log,
+            buf: String::with_capacity(1 << 16),
+            ends: Vec::with_capacity(1024),
+        }
+    }
+
+    /// At start: retention (sparing the file of the current hour, which
+    /// this run may append to).
+    pub fn start(&mut self, now: Timestamp) {
+        self.last_sync = now;
+        self.retention(now, Some(&file_name(hour_index(now))));
+    }
+
+    /// Writes `entries` (in queue order) to the files of their hours.
+    pub fn write(&mut self, entries: &[Entry], now: Timestamp) {
+        let mut i = 0;
+        while i < entries.len() {
+            let floor = self.newest.unwrap_or(i64::MIN);
+            let hour = hour_index(entries[i].received).max(floor);
+            self.buf.clear();
+            self.ends.clear();
+            let mut j = i;
+            while j < entries.len() && hour_index(entries[j].received).max(floor) <= hour {
+                format_line(&entries[j].rec, &self.sensors, entries[j].received, &mut self.buf);
+                self.ends.push(self.buf.len());
+                j += 1;
+            }
+            self.commit(hour, now);
+            i = j;
+        }
+        self.sync_if_due(now);
+    }
+
+    /// Time passes: closes the file when its hour is over, fsyncs when due.
+    pub fn tick(&mut self, now: Timestamp) {
+        if self.open.as_ref().is_some_and(|o| hour_index(now) > o.hour) {
+            self.roll_over(now);
+        }
+        self.sync_if_due(now);
+    }
+
+    /// Syncs and closes the open file (at shutdown).
+    pub fn close(&mut self, now: Timestamp) {
+        if let Some(o) = self.open.take()
+            && let Err(e) = self.disk.close()
+        {
+            self.fail(format!("cannot sync {}: {e}", o.name), now);
+        }
+        self.unsynced = false;
+    }
+
+    /// Writes the batch in `buf` to the file of `hour`.
+    fn commit(&mut self, hour: i64, now: Timestamp) {
+        let n = self.ends.len() as u64;
+        if self.open.as_ref().is_some_and(|o| o.hour != hour) {
+            self.roll_over(now);
+        }
+        if self.open.is_none() {
+            let name = file_name(hour);
+            self.newest = Some(self.newest.map_or(hour, |h| h.max(hour)));
+            match self.disk.open(&name) {
+                Ok(op) => {
+                    if !op.existed {
+                        self.metrics.record.files.fetch_add(1, Relaxed);
+                    }
+                    // A file found non-empty may end inside a line.
+                    self.check_end = op.len > 0;
+                    self.open = Some(OpenFile { name, hour });
+                }
+                Err(e) => return self.lost(n, format!("cannot open {name}: {e}"), now),
+            }
+        }
+        let name = self.open.as_ref().map(|o| o.name.clone()).unwrap_or_default();
+        if self.check_end {
+            let fresh = match self.disk.ends_with_newline() {
+                Ok(true) => Ok(()),
+                Ok(false) => self.disk.write(b"\n").map(|()| self.count_bytes(1)).map_err(|f| f.error),
+                Err(e) => Err(e),
+            };
+            match fresh {
+                Ok(()) => self.check_end = false,
+                Err(e) => return self.lost(n, format!("cannot write {name}: {e}"), now),
+            }
+        }
+        let st = &self.metrics.record;
+        match self.disk.write(self.buf.as_bytes()) {
+            Ok(()) => {
+                st.recorded.fetch_add(n, Relaxed);
+                self.count_bytes(self.buf.len() as u64);
+                self.unsynced = true;
+                if self.failing {
+                    self.failing = false;
+                    st.set_failing(None);
+                    tracing::info!(file = %name, "recording recovered: writes succeed again");
+                }
+            }
+            Err(f) => {
+                // Whole lines before the fault are in the file.
+                let done = self.ends.partition_point(|&e| e <= f.written) as u64;
+                st.recorded.fetch_add(done, Relaxed);
+                st.write_error.fetch_add(n - done, Relaxed);
+                self.count_bytes(f.written as u64);
+                self.unsynced |= f.written > 0;
+                self.check_end = true;
+                self.fail(format!("cannot write {name}: {}", f.error), now);
+            }
+        }
+    }
+
+    fn count_bytes(&self, n: u64) {
+        self.metrics.record.bytes_written.fetch_add(n, Relaxed);
+        self.metrics.record.disk_bytes.fetch_add(n, Relaxed);
+    }
+
+    /// `n` records not written.
+    fn lost(&mut self, n: u64, why: String, now: Timestamp) {
+        self.metrics.record.write_error.fetch_add(n, Relaxed);
+        self.fail(why, now);
+    }
+
+    fn fail(&mut self, why: String, now: Timestamp) {
+        self.failing = true;
+        if let Some(held) = self.log.check(None, "record_write", now) {
+            tracing::error!(dir = %self.metrics.record.dir, held_back = held, "recording: {why} (tracking goes on; {held} similar errors held back)");
+        }
+        self.metrics.record.set_failing(Some(why));
+    }
+
+    fn sync_if_due(&mut self, now: Timestamp) {
+        if !self.unsynced || self.open.is_none() || now.secs_since(self.last_sync) < self.set.fsync_interval_s {
+            return;
+        }
+        self.last_sync = now;
+        self.unsynced = false;
+        if let Err(e) = self.disk.sync() {
+            let name = self.open.as_ref().map(|o| o.name.clone()).unwrap_or_default();
+            self.fail(format!("cannot sync {name}: {e}"), now);
+        }
+    }
+
+    /// The hour is over: sync and close the file, then retention.
+    fn roll_over(&mut self, now: Timestamp) {
+        self.close(now);
+        let current = hour_index(now).max(self.newest.unwrap_or(i64::MIN));
+        self.retention(now, Some(&file_name(current)));
+    }
+
+    fn retention(&mut self, now: Timestamp, spare: Option<&str>) {
+        let st = &self.metrics.record;
+        let listed = match self.disk.list() {
+            Ok(l) => l,
+            Err(e) => {
+                if self.log.check(None, "record_retention", now).is_some() {
+                    tracing::warn!(dir = %st.dir, "recording retention: cannot list the folder: {e}");
+                }
+                return;
+            }
+        };
+        let mut files: Vec<RecordingFile> = listed.iter().filter_map(|(n, b)| RecordingFile::new(n, *b)).collect();
+        let protect = self.open.as_ref().map(|o| o.name.as_str()).or(spare);
+        let doomed = to_delete(&files, now, self.set.keep_hours, self.set.max_bytes, protect);
+        for name in &doomed {
+            match self.disk.remove(name) {
+                Ok(()) => {
+                    st.files_deleted.fetch_add(1, Relaxed);
+                    files.retain(|f| &f.name != name);
+                    tracing::info!(file = %name, "recording retention: deleted");
+                }
+                Err(e) => {
+                    if self.log.check(None, "record_retention", now).is_some() {
+                        tracing::warn!(file = %name, "recording retention: cannot delete: {e}");
+                    }
+                }
+            }
+        }
+        st.files.store(files.len() as u64, Relaxed);
+        st.disk_bytes.store(files.iter().map(|f| f.bytes).sum(), Relaxed);
+    }
+
+    /// The thread's loop, until `stop` is set and the queue is empty.
+    fn run(mut self, rx: Receiver<Entry>, stop: Arc<AtomicBool>, clock: DaemonClock) {
+        self.start(clock.now());
+        let mut entries: Vec<Entry> = Vec::with_capacity(MAX_BATCH);
+        loop {
+            let stopping = stop.load(Acquire);
+            let first = if stopping {
+                match rx.try_recv() {
+                    Ok(e) => Some(e),
+                    Err(_) => break,
+                }
+            } else {
+                match rx.recv_timeout(TICK) {
+                    Ok(e) => Some(e),
+                    Err(RecvTimeoutError::Timeout) => None,
+                    Err(RecvTimeoutError::Disconnected) => break,
+                }
+            };
+            if let Some(e) = first {
+                entries.push(e);
+                if !stopping {
+                    std::thread::sleep(LINGER);
+                }
+                loop {
+                    let room = MAX_BATCH - entries.len();
+                    entries.extend(rx.try_iter().take(room));
+                    let full = entries.len() == MAX_BATCH;
+                    self.write(&entries, clock.now());
+                    entries.clear();
+                    if !full {
+                        break;
+                    }
+                }
+            }
+            self.tick(clock.now());
+        }
+        self.close(clock.now());
+        tracing::debug!("recording writer stopped");
+    }
+}
+
+/// Starts the writer thread on `disk` with the `[record]` settings.
+pub fn start(r: &RecordConfig, disk: Box<dyn Disk>, sensors: SensorTable, metrics: Arc<Metrics>, clock: DaemonClock, log_interval_s: f64) -> io::Result<(Recorder, RecordHandle)> {
+    let (tx, rx) = std::sync::mpsc::sync_channel(r.queue);
+    let stop = Arc::new(AtomicBool::new(false));
+    let writer = Writer::new(disk, sensors, WriterSettings::new(r, log_interval_s), metrics.clone());
+    let s = stop.clone();
+    let thread = std::thread::Builder::new().name("skerry-record".into()).spawn(move || writer.run(rx, s, clock))?;
+    tracing::info!(dir = %r.dir, "recording accepted records");
+    Ok((Recorder { tx, metrics }, RecordHandle { stop, thread: Some(thread) }))
+}

@@ -1,0 +1,224 @@
+//! Recordings (CONTRACT.md §7): the pure parts, usable offline.
+//!
+//! With `[record] dir` set, `skerry serve` writes every record it accepts
+//! as a feed line (§1) with one added field, `received`, the RFC 3339 UTC
+//! time the daemon received it. One file per UTC hour of `received`,
+//! named `YYYY-MM-DDTHH.jsonl`; a file whose name is not exactly of that
+//! form (a valid date and hour, nothing before or after) is not a
+//! recording file, and nothing here ever reads or deletes it.
+//!
+//! This module names the files, picks the files retention deletes, lists
+//! the recording files of a folder in time order (a folder given to
+//! `skerry track`, `check` or `replay` is read as one feed, its files in
+//! name order, which is time order), and recognises a torn final line: the
+//! last line of a file that does not end in a newline and is not a whole
+//! JSON value, as left by a crash or a full disk in the middle of a write.
+//! The writer itself is `daemon::record`.
+
+use crate::feed::{Record, SensorTable, encode_record};
+use crate::time::Timestamp;
+use std::path::{Path, PathBuf};
+
+/// Nanoseconds in an hour.
+const HOUR_NS: i64 = 3_600_000_000_000;
+
+/// The suffix of every recording file.
+pub const SUFFIX: &str = ".jsonl";
+
+/// Length of `YYYY-MM-DDTHH.jsonl`.
+const NAME_LEN: usize = 13 + SUFFIX.len();
+
+/// The UTC hour of `t`, counted from the epoch.
+pub fn hour_index(t: Timestamp) -> i64 {
+    t.unix_nanos().div_euclid(HOUR_NS)
+}
+
+/// The start of hour `h` (see [`hour_index`]).
+pub fn hour_start(h: i64) -> Timestamp {
+    Timestamp::from_unix_nanos(h.saturating_mul(HOUR_NS))
+}
+
+/// The name of the recording file of hour `h`: `YYYY-MM-DDTHH.jsonl`.
+pub fn file_name(h: i64) -> String {
+    let mut s = String::with_capacity(NAME_LEN);
+    hour_start(h).write_rfc3339(&mut s);
+    s.truncate(13);
+    s.push_str(SUFFIX);
+    s
+}
+
+/// The hour of a recording file's name, or `None` when the name is not
+/// exactly `YYYY-MM-DDTHH.jsonl` with a real date and an hour 00–23.
+pub fn parse_file_name(name: &str) -> Option<i64> {
+    let stem = name.strip_suffix(SUFFIX)?;
+    let b = stem.as_bytes();
+    if b.len() != 13 || b[4] != b'-' || b[7] != b'-' || b[10] != b'T' {
+        return None;
+    }
+    if ![0..4, 5..7, 8..10, 11..13].iter().all(|r| b[r.clone()].iter().all(u8::is_ascii_digit)) {
+        return None;
+    }
+    let t = Timestamp::parse_rfc3339(&format!("{stem}:00:00Z")).ok()?;
+    let h = hour_index(t);
+    // Only the canonical spelling (the parser takes `t` for `T`; the
+    // check above already refuses it, this keeps the two in step).
+    (file_name(h) == name).then_some(h)
+}
+
+/// Appends the recording line of `rec`, received at `received`, with its
+/// newline.
+pub fn format_line(rec: &Record, sensors: &SensorTable, received: Timestamp, out: &mut String) {
+    encode_record(rec, sensors, Some(received), out);
+    out.push('\n');
+}
+
+/// A recording file found in a folder.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct RecordingFile {
+    pub name: String,
+    /// Its hour (see [`hour_index`]).
+    pub hour: i64,
+    pub bytes: u64,
+}
+
+impl RecordingFile {
+    /// `None` when `name` is not a recording file's name.
+    pub fn new(name: &str, bytes: u64) -> Option<RecordingFile> {
+        Some(RecordingFile { name: name.to_string(), hour: parse_file_name(name)?, bytes })
+    }
+}
+
+/// The recording files retention deletes at `now`, oldest first:
+/// - every file whose hour ended more than `keep_hours` before `now`;
+/// - then, if `max_bytes` is set and the files left (the protected one
+///   included) take more than that, the oldest of them until the rest
+///   fits.
+///
+/// `protect` (the open file) is never chosen, even when it alone is over
+/// the limit. `files` may hold any names: those that are not recording
+/// files are never chosen and do not count toward the total.
+pub fn to_delete(files: &[RecordingFile], now: Timestamp, keep_hours: f64, max_bytes: Option<u64>, protect: Option<&str>) -> Vec<String> {
+    let mut files: Vec<&RecordingFile> = files.iter().filter(|f| parse_file_name(&f.name) == Some(f.hour)).collect();
+    files.sort_by(|a, b| a.hour.cmp(&b.hour).then_with(|| a.name.cmp(&b.name)));
+    let keep_s = keep_hours * 3600.0;
+    let mut out = Vec::new();
+    let mut left = Vec::with_capacity(files.len());
+    for f in files {
+        let ended = hour_start(f.hour.saturating_add(1));
+        if Some(f.name.as_str()) != protect && now.secs_since(ended) > keep_s {
+            out.push(f.name.clone());
+        } else {
+            left.push(f);
+        }
+    }
+    if let Some(max) = max_bytes {
+        let mut total: u64 = left.iter().map(|f| f.bytes).sum();
+        for f in left {
+            if total <= max {
+                break;
+            }
+            if Some(f.name.as_str()) == protect {
+                continue;
+            }
+            total -= f.bytes;
+            out.push(f.name.clone());
+        }
+    }
+    out
+}
+
+/// Why a path could not be read as a feed.
+#[derive(Debug, thiserror::Error)]
+pub enum FeedPathError {
+    #[error("{path}: cannot read: {source}")]
+    Io { path: String, source: std::io::Error },
+    #[error("{path}: a folder without recording files (YYYY-MM-DDTHH.jsonl)")]
+    EmptyFolder { path: String },
+}
+
+/// The recording files of folder `dir`, in name (= time) order. Other
+/// names, and folders, are left out.
+pub fn recording_files(dir: &Path) -> std::io::Result<Vec<PathBuf>> {
+    let mut names = Vec::new();
+    for e in std::fs::read_dir(dir)? {
+        let e = e?;
+        let Some(name) = e.file_name().to_str().map(str::to_string) else { continue };
+        if parse_file_name(&name).is_some() && e.file_type()?.is_file() {
+            names.push(name);
+        }
+    }
+    names.sort();
+    Ok(names.into_iter().map(|n| dir.join(n)).collect())
+}
+
+/// Feed paths with each folder replaced by its recording files in name
+/// order; files are kept as they are, in the order given.
+pub fn expand_feed_paths(paths: &[PathBuf]) -> Result<Vec<PathBuf>, FeedPathError> {
+    let mut out = Vec::with_capacity(paths.len());
+    for p in paths {
+        let io = |source| FeedPathError::Io { path: p.display().to_string(), source };
+        if std::fs::metadata(p).map_err(io)?.is_dir() {
+            let files = recording_files(p).map_err(io)?;
+            if files.is_empty() {
+                return Err(FeedPathError::EmptyFolder { path: p.display().to_string() });
+            }
+            out.extend(files);
+        } else {
+            out.push(p.clone());
+        }
+    }
+    Ok(out)
+}
+
+/// True when `line` (the last line of a file that lacks its final
+/// newline) is torn: not one whole JSON value. A line cut anywhere before
+/// its closing brace is never valid JSON, and a cut inside a multi-byte
+/// character is not even UTF-8; a line that is whole JSON but a bad
+/// record is an ordinary bad line, not a torn one.
+pub fn is_torn(line: &[u8]) -> bool {
+    serde_json::from_slice::<serde::de::IgnoredAny>(line).is_err()
+}
+
+/// The `received` time of a recording line, read without decoding the
+/// rest; `None` when absent or not an RFC 3339 time.
+pub fn line_received(line: &str) -> Option<Timestamp> {
+    #[derive(serde::Deserialize)]
+    struct R<'a> {
+        #[serde(borrow)]
+        received: Option<std::borrow::Cow<'a, str>>,
+    }
+    let r: R = serde_json::from_str(line).ok()?;
+    Timestamp::parse_rfc3339(&r.received?).ok()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn names_round_trip() {
+        // 2026-05-14T06:00:00Z is 1778738400 s after the epoch (GNU date
+        // `date -u -d 2026-05-14T06:00:00Z +%s`), hour 494094.
+        let t = Timestamp::parse_rfc3339("2026-05-14T06:59:59.999Z").unwrap();
+        assert_eq!(hour_index(t), 1_778_738_400 / 3600);
+        assert_eq!(file_name(hour_index(t)), "2026-05-14T06.jsonl");
+        assert_eq!(parse_file_name("2026-05-14T06.jsonl"), Some(hour_index(t)));
+        for bad in ["2026-05-14T6.jsonl", "2026-05-14T24.jsonl", "2026-02-30T01.jsonl", "2026-05-14t06.jsonl", "x2026-05-14T06.jsonl", "2026-05-14T06.jsonl.bak", "2026-05-14T06.json", "2026-05-14 06.jsonl", "+026-05-14T06.jsonl"] {
+            assert_eq!(parse_file_name(bad), None, "{bad}");
+        }
+        // Hours before the epoch are named too (div_euclid, not /).
+        assert_eq!(file_name(-1), "1969-12-31T23.jsonl");
+    }
+
+    #[test]
+    fn torn_lines() {
+        let line = br#"{"type":"detection","sensor":"a","time":"2026-05-14T06:00:00Z","range_m":1.0,"bearing_deg":2.0}"#;
+        assert!(!is_torn(line));
+        for cut in 1..line.len() {
+            assert!(is_torn(&line[..cut]), "cut at {cut}");
+        }
+        let utf8 = "{\"id\":\"Skær\"}".as_bytes();
+        assert!(is_torn(&utf8[..10]), "cut inside a two-byte character");
+        assert!(!is_torn(br#"{"type":"plot"}"#), "whole JSON is not torn, only bad");
+    }
+}
