@@ -41,7 +41,7 @@ pub struct TrackArgs {
     /// Configuration file (TOML): site, sensors, tracking.
     #[arg(long, short)]
     pub config: PathBuf,
-    /// Feed files (JSON Lines); records may be in any order.
+    /// Feed files (JSON Lines), or recording folders; records may be in any order.
     #[arg(required = true)]
     pub feeds: Vec<PathBuf>,
     /// Write track records here instead of standard output.
@@ -54,7 +54,7 @@ pub struct CheckArgs {
     /// Configuration file (TOML).
     #[arg(long, short)]
     pub config: PathBuf,
-    /// Feed files (JSON Lines).
+    /// Feed files (JSON Lines), or recording folders.
     #[arg(required = true)]
     pub feeds: Vec<PathBuf>,
 }
