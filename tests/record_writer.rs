@@ -1,0 +1,168 @@
+//! The recording writer driven directly, with the times passed in: hourly
+//! files by `received` (CONTRACT.md §7), the hour change, append on a
+//! restart within the hour, a fresh line after a crash mid-line, and the
+//! fsync cadence. Expected file names and line counts are worked out by
+//! hand from the definitions in the contract.
+
+mod daemon_support;
+
+use daemon_support::config;
+use skerry::daemon::metrics::Metrics;
+use skerry::daemon::record::{Disk, Entry, FsDisk, Opened, WriteFault, Writer, WriterSettings};
+use skerry::feed::{self, Record};
+use skerry::recording::line_received;
+use skerry::time::Timestamp;
+use std::path::Path;
+use std::sync::atomic::{AtomicUsize, Ordering::Relaxed};
+use std::sync::Arc;
+
+fn ts(s: &str) -> Timestamp {
+    Timestamp::parse_rfc3339(s).unwrap()
+}
+
+fn plot(cfg: &skerry::config::Config, time: Timestamp, range_m: f64) -> Record {
+    let radar = cfg.sensor_table().lookup("kestrel-point").unwrap();
+    Record::Detection(feed::Detection { sensor: radar, time, scan: Some(1), range_m, bearing_deg: 12.5, radial_speed_mps: None, snr_db: Some(14.0) })
+}
+
+/// Counts syncs and closes of the real disk under it.
+struct Counting {
+    inner: FsDisk,
+    syncs: Arc<AtomicUsize>,
+    closes: Arc<AtomicUsize>,
+}
+
+impl Disk for Counting {
+    fn list(&mut self) -> std::io::Result<Vec<(String, u64)>> {
+        self.inner.list()
+    }
+    fn open(&mut self, name: &str) -> std::io::Result<Opened> {
+        self.inner.open(name)
+    }
+    fn ends_with_newline(&mut self) -> std::io::Result<bool> {
+        self.inner.ends_with_newline()
+    }
+    fn write(&mut self, buf: &[u8]) -> Result<(), WriteFault> {
+        self.inner.write(buf)
+    }
+    fn sync(&mut self) -> std::io::Result<()> {
+        self.syncs.fetch_add(1, Relaxed);
+        self.inner.sync()
+    }
+    fn close(&mut self) -> std::io::Result<()> {
+        self.closes.fetch_add(1, Relaxed);
+        self.inner.close()
+    }
+    fn remove(&mut self, name: &str) -> std::io::Result<()> {
+        self.inner.remove(name)
+    }
+}
+
+struct Rig {
+    cfg: skerry::config::Config,
+    metrics: Arc<Metrics>,
+    syncs: Arc<AtomicUsize>,
+    closes: Arc<AtomicUsize>,
+}
+
+fn rig(dir: &Path) -> (Rig, Writer) {
+    let cfg = config(&[("SKERRY__RECORD__DIR", dir.to_str().unwrap())]);
+    let metrics = Arc::new(Metrics::new(&cfg, ts("2026-05-14T06:00:00Z")));
+    let syncs = Arc::new(AtomicUsize::new(0));
+    let closes = Arc::new(AtomicUsize::new(0));
+    let disk = Counting { inner: FsDisk::new(dir), syncs: syncs.clone(), closes: closes.clone() };
+    let set = WriterSettings::new(cfg.record.as_ref().unwrap(), 10.0);
+    let w = Writer::new(Box::new(disk), cfg.sensor_table(), set, metrics.clone());
+    (Rig { cfg, metrics, syncs, closes }, w)
+}
+
+fn read(dir: &Path, name: &str) -> String {
+    std::fs::read_to_string(dir.join(name)).unwrap_or_else(|e| panic!("{name}: {e}"))
+}
+
+#[test]
+fn files_follow_the_received_hour_and_the_hour_change_closes_them() {
+    let dir = tempfile::tempdir().unwrap();
+    let (r, mut w) = rig(dir.path());
+    w.start(ts("2026-05-14T06:59:00Z"));
+    let e = |rec: &str, t: f64| Entry { rec: plot(&r.cfg, ts("2026-05-14T06:59:00Z"), t), received: ts(rec) };
+    // Two records of 06, then 07, then one received a hair before 07
+    // from another input, queued after the first 07 record.
+    w.write(&[e("2026-05-14T06:59:59.5Z", 1000.0), e("2026-05-14T06:59:59.999Z", 1001.0), e("2026-05-14T07:00:00.001Z", 1002.0), e("2026-05-14T06:59:59.9995Z", 1003.0)], ts("2026-05-14T07:00:00.002Z"));
+    let six = read(dir.path(), "2026-05-14T06.jsonl");
+    let seven = read(dir.path(), "2026-05-14T07.jsonl");
+    assert_eq!(six.lines().count(), 2, "{six}");
+    assert_eq!(seven.lines().count(), 2, "{seven}");
+    assert!(seven.lines().nth(1).unwrap().contains("\"range_m\":1003.0"), "the stray 06 record went to the newest file");
+    // The 06 file was closed (synced) when the 07 record came.
+    assert_eq!(r.closes.load(Relaxed), 1);
+    for l in six.lines().chain(seven.lines()) {
+        // Each line is a feed line the decoder takes, `received` and all.
+        feed::decode_line(l.as_bytes(), &r.cfg.sensor_table()).unwrap();
+        assert!(line_received(l).is_some(), "{l}");
+    }
+    assert_eq!(line_received(six.lines().next().unwrap()), Some(ts("2026-05-14T06:59:59.5Z")));
+    // The clock alone moving into 08 closes the 07 file.
+    w.tick(ts("2026-05-14T07:59:59Z"));
+    assert_eq!(r.closes.load(Relaxed), 1);
+    w.tick(ts("2026-05-14T08:00:00.01Z"));
+    assert_eq!(r.closes.load(Relaxed), 2);
+    let m = r.metrics.render(ts("2026-05-14T08:00:01Z"));
+    assert!(m.contains("skerry_recorded_total 4\n"), "{m}");
+    assert!(m.contains("skerry_record_files 2\n"), "{m}");
+    let bytes = six.len() + seven.len();
+    assert!(m.contains(&format!("skerry_record_bytes_total {bytes}\n")), "{m}");
+}
+
+#[test]
+fn a_restart_in_the_same_hour_appends_and_starts_on_a_fresh_line() {
+    let dir = tempfile::tempdir().unwrap();
+    let name = "2026-05-14T06.jsonl";
+    {
+        let (r, mut w) = rig(dir.path());
+        w.start(ts("2026-05-14T06:10:00Z"));
+        w.write(&[Entry { rec: plot(&r.cfg, ts("2026-05-14T06:10:00Z"), 1500.0), received: ts("2026-05-14T06:10:00.5Z") }], ts("2026-05-14T06:10:00.6Z"));
+        w.close(ts("2026-05-14T06:10:01Z"));
+    }
+    // A crash in the middle of the next line.
+    let mut f = std::fs::OpenOptions::new().append(true).open(dir.path().join(name)).unwrap();
+    std::io::Write::write_all(&mut f, br#"{"type":"detection","sensor":"kestrel-po"#).unwrap();
+    drop(f);
+    let (r, mut w) = rig(dir.path());
+    w.start(ts("2026-05-14T06:20:00Z"));
+    w.write(&[Entry { rec: plot(&r.cfg, ts("2026-05-14T06:20:00Z"), 2500.0), received: ts("2026-05-14T06:20:00.5Z") }], ts("2026-05-14T06:20:01Z"));
+    w.close(ts("2026-05-14T06:20:02Z"));
+    let text = read(dir.path(), name);
+    let lines: Vec<&str> = text.lines().collect();
+    assert_eq!(lines.len(), 3, "{text}");
+    let table = r.cfg.sensor_table();
+    assert!(feed::decode_line(lines[0].as_bytes(), &table).is_ok());
+    assert_eq!(lines[1], r#"{"type":"detection","sensor":"kestrel-po"#, "the torn piece stands alone");
+    assert!(feed::decode_line(lines[2].as_bytes(), &table).is_ok(), "{}", lines[2]);
+    assert!(lines[2].contains("2500.0"));
+    // No new file was counted: it existed.
+    assert!(r.metrics.render(ts("2026-05-14T06:20:03Z")).contains("skerry_record_files 1\n"));
+}
+
+#[test]
+fn fsync_follows_the_interval() {
+    let dir = tempfile::tempdir().unwrap();
+    let (r, mut w) = rig(dir.path());
+    // record.fsync_interval_s defaults to 1 s.
+    let t0 = ts("2026-05-14T06:00:00Z");
+    w.start(t0);
+    // A batch every 0.25 s for 3 s: a sync when 1, 2 and 3 s have passed
+    // since the last one.
+    for k in 1..=12 {
+        let now = t0.plus_secs(0.25 * k as f64);
+        w.write(&[Entry { rec: plot(&r.cfg, now, 1000.0 + k as f64), received: now }], now);
+    }
+    assert_eq!(r.syncs.load(Relaxed), 3);
+    // Nothing written since: time alone does not sync again.
+    w.tick(t0.plus_secs(10.0));
+    assert_eq!(r.syncs.load(Relaxed), 3);
+    let now = t0.plus_secs(10.1);
+    w.write(&[Entry { rec: plot(&r.cfg, now, 999.0), received: now }], now);
+    assert_eq!(r.syncs.load(Relaxed), 4, "more than 1 s since the last sync");
+    assert_eq!(read(dir.path(), "2026-05-14T06.jsonl").lines().count(), 13);
+}
