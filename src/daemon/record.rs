@@ -608,3 +608,37 @@ pub fn start(r: &RecordConfig, disk: Box<dyn Disk>, sensors: SensorTable, metric
     tracing::info!(dir = %r.dir, "recording accepted records");
     Ok((Recorder { tx, metrics }, RecordHandle { stop, thread: Some(thread) }))
 }
+
+#[cfg(test)]
+mod tests {
+    use crate::config::{Config, RecordConfig};
+    use std::collections::HashMap;
+
+    /// deploy/skerry.toml documents every [record] key, commented out,
+    /// with its default (`dir` and `max_bytes` have none: examples), and
+    /// the block uncommented loads.
+    #[test]
+    fn deploy_config_documents_every_record_key_with_its_default() {
+        let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("deploy/skerry.toml");
+        let text = std::fs::read_to_string(&path).unwrap();
+        let start = text.find("\n# [record]\n").expect("a commented [record] block");
+        let block: String = text[start..]
+            .lines()
+            .filter_map(|l| l.strip_prefix("# "))
+            .filter(|l| l.split_once(" = ").is_some_and(|(k, _)| !k.is_empty() && k.chars().all(|c| c.is_ascii_lowercase() || c == '_')))
+            .map(|l| format!("{l}\n"))
+            .collect();
+        let documented: RecordConfig = toml::from_str(&block).unwrap();
+        let defaults: RecordConfig = toml::from_str(&format!("dir = {:?}", documented.dir)).unwrap();
+        assert!(documented.max_bytes.is_some(), "max_bytes is shown with an example value");
+        let mut a = toml::Value::try_from(&documented).unwrap();
+        a.as_table_mut().unwrap().remove("max_bytes");
+        assert_eq!(a, toml::Value::try_from(&defaults).unwrap(), "deploy/skerry.toml [record] differs from the defaults");
+        for key in toml::Value::try_from(&documented).unwrap().as_table().unwrap().keys() {
+            assert!(text[start..].contains(&format!("\n# {key} =")), "deploy/skerry.toml lacks `{key}`");
+        }
+        let uncommented = format!("{}\n[record]\n{block}", &text[..start]);
+        let cfg = Config::from_toml_str(&uncommented, "deploy", &HashMap::new()).unwrap();
+        assert!(cfg.record.is_some());
+    }
+}
