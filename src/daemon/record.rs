@@ -50,7 +50,7 @@ use super::ingest::LogLimiter;
 use super::metrics::Metrics;
 use crate::config::RecordConfig;
 use crate::feed::{Record, SensorTable};
-use crate::recording::{RecordingFile, file_name, format_line, hour_index, to_delete};
+use crate::recording::{LineWriter, RecordingFile, file_name, hour_index, to_delete};
 use crate::time::Timestamp;
 use std::fmt::Write as _;
 use std::fs::File;
@@ -346,7 +346,7 @@ struct OpenFile {
 /// in (tests drive it directly with times of their own).
 pub struct Writer {
     disk: Box<dyn Disk>,
-    sensors: SensorTable,
+    lines: LineWriter,
     set: WriterSettings,
     metrics: Arc<Metrics>,
     open: Option<OpenFile>,
@@ -360,7 +360,7 @@ pub struct Writer {
     failing: bool,
     log: LogLimiter,
     /// The batch being written, and where each of its lines ends.
-    buf: String,
+    buf: Vec<u8>,
     ends: Vec<usize>,
 }
 
@@ -369,7 +369,7 @@ impl Writer {
         let log = LogLimiter::new(set.log_interval_s);
         Writer {
             disk,
-            sensors,
+            lines: LineWriter::new(&sensors),
             set,
             metrics,
             open: None,
@@ -379,7 +379,7 @@ impl Writer {
             last_sync: Timestamp::from_unix_nanos(0),
             failing: false,
             log,
-            buf: String::with_capacity(1 << 16),
+            buf: Vec::with_capacity(1 << 16),
             ends: Vec::with_capacity(1024),
         }
     }
@@ -401,7 +401,7 @@ impl Writer {
             self.ends.clear();
             let mut j = i;
             while j < entries.len() && hour_index(entries[j].received).max(floor) <= hour {
-                format_line(&entries[j].rec, &self.sensors, entries[j].received, &mut self.buf);
+                self.lines.line(&entries[j].rec, entries[j].received, &mut self.buf);
                 self.ends.push(self.buf.len());
                 j += 1;
             }
@@ -463,7 +463,7 @@ impl Writer {
             }
         }
         let st = &self.metrics.record;
-        match self.disk.write(self.buf.as_bytes()) {
+        match self.disk.write(&self.buf) {
             Ok(()) => {
                 st.recorded.fetch_add(n, Relaxed);
                 self.count_bytes(self.buf.len() as u64);
