@@ -126,9 +126,62 @@ impl SecondText {
 }
 
 fn num(out: &mut Vec<u8>, v: f64) {
-    // Records are checked finite; serde_json writes `null` otherwise, as
-    // encode_record does.
-    let _ = serde_json::to_writer(&mut *out, &v);
+    if !short_decimal(out, v) {
+        // Records are checked finite; serde_json writes `null` otherwise,
+        // as encode_record does.
+        let _ = serde_json::to_writer(&mut *out, &v);
+    }
+}
+
+/// Writes `v` when it is the double nearest to m / 10^k for an integer
+/// m < 10^15 and k ≤ 4 (a radar's range to the decimetre, a bearing to
+/// the hundredth...), as the shortest round-trip form serde_json gives:
+/// the decimal m / 10^k itself. Why it is the shortest: any other decimal
+/// of at most 15 significant digits that rounds to the same double is
+/// the same number (15 digits always survive decimal → double →
+/// decimal), and the smallest such k leaves no trailing zero. Within
+/// 1e-4 ≤ |v| < 1e15 serde_json writes plain decimals, `.0` after a
+/// whole number. Returns false, writing nothing, for any other value.
+fn short_decimal(out: &mut Vec<u8>, v: f64) -> bool {
+    const P10: [f64; 5] = [1.0, 10.0, 100.0, 1000.0, 10000.0];
+    let a = v.abs();
+    if !(1e-4..1e15).contains(&a) {
+        return false;
+    }
+    for (k, p) in P10.iter().enumerate() {
+        // Nearest integer (a > 0; no libm call on a baseline x86-64).
+        let m = (a * p + 0.5) as u64 as f64;
+        if m >= 1e15 {
+            return false;
+        }
+        // Exact operands, one correctly rounded division: the double
+        // nearest to m / 10^k.
+        if m / p == a {
+            let mut digits = [0u8; 20];
+            let mut n = 0;
+            let mut x = m as u64;
+            while x > 0 || n <= k {
+                digits[n] = b'0' + (x % 10) as u8;
+                x /= 10;
+                n += 1;
+            }
+            if v < 0.0 {
+                out.push(b'-');
+            }
+            for i in (k..n).rev() {
+                out.push(digits[i]);
+            }
+            out.push(b'.');
+            if k == 0 {
+                out.push(b'0');
+            }
+            for i in (0..k).rev() {
+                out.push(digits[i]);
+            }
+            return true;
+        }
+    }
+    false
 }
 
 fn int(out: &mut Vec<u8>, v: u64) {
@@ -354,8 +407,16 @@ mod tests {
         let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(7);
         let mut w = LineWriter::new(&sensors);
         let num = |rng: &mut rand_chacha::ChaCha8Rng| -> f64 {
-            match rng.random_range(0..4) {
+            match rng.random_range(0..7) {
                 0 => rng.random_range(-1e5..1e5),
+                // Short decimals of every size, the fast path's domain and
+                // its edges.
+                4 | 5 => {
+                    let k = rng.random_range(0..6);
+                    let x = rng.random_range(-1.0..1.0) * 10f64.powi(rng.random_range(-6..17));
+                    (x * 10f64.powi(k)).round() / 10f64.powi(k)
+                }
+                6 => [0.0, -0.0, 1e-4, 9.9999e-5, 1e-5, 0.0001, 0.00015, 1e15, 999999999999999.9, 1e15 - 1.0, 0.1, 0.2, 0.3, 2.675, 1.005, 5e-5][rng.random_range(0..16)],
                 1 => (rng.random_range(-30.0..30.0f64)).exp2() * 10f64.powi(rng.random_range(-12..25)),
                 2 => rng.random_range(-1000i64..1000) as f64,
                 _ => f64::from_bits(rng.random::<u64>() >> 2),
@@ -376,6 +437,22 @@ mod tests {
             w.line(&rec, received, &mut got);
             assert_eq!(std::str::from_utf8(&got).unwrap(), want);
         }
+        // The fast path on its own against serde_json, over many short
+        // decimals.
+        let mut taken = 0;
+        for _ in 0..200_000 {
+            let k = rng.random_range(0..5);
+            let v = (rng.random_range(-1.0..1.0) * 10f64.powi(rng.random_range(-4..16)) * 10f64.powi(k)).round() / 10f64.powi(k);
+            let mut got = Vec::new();
+            if short_decimal(&mut got, v) {
+                taken += 1;
+                assert_eq!(std::str::from_utf8(&got).unwrap(), serde_json::to_string(&v).unwrap(), "{v:e}");
+            }
+        }
+        assert!(taken > 100_000, "the fast path was taken {taken} times");
+        let mut hit = Vec::new();
+        assert!(short_decimal(&mut hit, 12345.6) && short_decimal(&mut hit, -0.05) && short_decimal(&mut hit, 2000.0));
+        assert_eq!(hit, b"12345.6-0.052000.0");
     }
 
     #[test]

@@ -14,9 +14,17 @@
 //! writes and fsync block, and a slow or hung disk must stall only the
 //! recording, never a runtime worker that ingest and the engine share.
 //! It wakes on the first queued record, waits [`LINGER`] so that a burst
-//! collects, formats everything queued into one buffer and writes it in
-//! one call (so every batch reaches the operating system when it is
-//! written); the open file is fsynced every `record.fsync_interval_s`.
+//! collects, takes everything queued at once, formats it into one buffer
+//! and writes it in one call (so every batch reaches the operating system
+//! when it is written); the open file is fsynced every
+//! `record.fsync_interval_s`.
+//!
+//! The queue is a vector filled under a short lock and swapped whole by
+//! the writer, not a ring channel: a ring of `record.queue` slots is
+//! touched one cold cache line after another, while the batch vector
+//! stays small and warm, and ingest pays one uncontended lock per record
+//! and a wake-up only when the queue was empty. Both vectors are sized
+//! to `record.queue` at start, so the hot path never allocates.
 //!
 //! # Files
 //!
@@ -56,10 +64,9 @@ use std::fmt::Write as _;
 use std::fs::File;
 use std::io::{self, Read, Seek, SeekFrom, Write};
 use std::path::PathBuf;
-use std::sync::atomic::Ordering::{Acquire, Relaxed, Release};
-use std::sync::atomic::{AtomicBool, AtomicU64};
-use std::sync::mpsc::{Receiver, RecvTimeoutError, SyncSender, TrySendError};
-use std::sync::{Arc, Mutex};
+use std::sync::atomic::AtomicU64;
+use std::sync::atomic::Ordering::Relaxed;
+use std::sync::{Arc, Condvar, Mutex, MutexGuard, PoisonError};
 use std::time::Duration;
 
 /// How long the writer lets a burst collect after the first record wakes
@@ -280,33 +287,57 @@ impl RecordStats {
     }
 }
 
+/// The records waiting for the writer.
+struct Queue {
+    state: Mutex<Waiting>,
+    /// Signalled when the first record goes into an empty queue, and at
+    /// stop.
+    ready: Condvar,
+    cap: usize,
+}
+
+struct Waiting {
+    items: Vec<Entry>,
+    stop: bool,
+}
+
+impl Queue {
+    fn lock(&self) -> MutexGuard<'_, Waiting> {
+        // A writer that panicked holding the lock leaves the vector sound.
+        self.state.lock().unwrap_or_else(PoisonError::into_inner)
+    }
+}
+
 /// The ingest side: offers accepted records to the writer.
 #[derive(Clone)]
 pub struct Recorder {
-    tx: SyncSender<Entry>,
+    queue: Arc<Queue>,
     metrics: Arc<Metrics>,
 }
 
 impl Recorder {
-    /// Queues `rec` for the recording, or counts it as not recorded.
-    /// Never waits.
+    /// Queues `rec` for the recording, or counts it as not recorded when
+    /// `record.queue` records are already waiting. Never waits beyond a
+    /// lock held only for a push or a swap.
     pub fn offer(&self, rec: Record, received: Timestamp) {
-        match self.tx.try_send(Entry { rec, received }) {
-            Ok(()) => {}
-            Err(TrySendError::Full(_)) => {
-                self.metrics.record.queue_full.fetch_add(1, Relaxed);
-            }
-            // The writer is gone (it never stops before ingest does).
-            Err(TrySendError::Disconnected(_)) => {
-                self.metrics.record.write_error.fetch_add(1, Relaxed);
-            }
+        let mut q = self.queue.lock();
+        if q.items.len() >= self.queue.cap {
+            drop(q);
+            self.metrics.record.queue_full.fetch_add(1, Relaxed);
+            return;
+        }
+        let was_empty = q.items.is_empty();
+        q.items.push(Entry { rec, received });
+        drop(q);
+        if was_empty {
+            self.queue.ready.notify_one();
         }
     }
 }
 
 /// Stops the writer thread.
 pub struct RecordHandle {
-    stop: Arc<AtomicBool>,
+    queue: Arc<Queue>,
     thread: Option<std::thread::JoinHandle<()>>,
 }
 
@@ -314,7 +345,8 @@ impl RecordHandle {
     /// Call once ingest has stopped: the writer writes what is queued,
     /// syncs and closes its file, and ends.
     pub async fn finish(mut self) {
-        self.stop.store(true, Release);
+        self.queue.lock().stop = true;
+        self.queue.ready.notify_one();
         if let Some(t) = self.thread.take() {
             let _ = tokio::task::spawn_blocking(move || t.join()).await;
         }
@@ -393,6 +425,13 @@ impl Writer {
 
     /// Writes `entries` (in queue order) to the files of their hours.
     pub fn write(&mut self, entries: &[Entry], now: Timestamp) {
+        for chunk in entries.chunks(MAX_BATCH) {
+            self.write_chunk(chunk, now);
+        }
+        self.sync_if_due(now);
+    }
+
+    fn write_chunk(&mut self, entries: &[Entry], now: Timestamp) {
         let mut i = 0;
         while i < entries.len() {
             let floor = self.newest.unwrap_or(i64::MIN);
@@ -408,7 +447,6 @@ impl Writer {
             self.commit(hour, now);
             i = j;
         }
-        self.sync_if_due(now);
     }
 
     /// Time passes: closes the file when its hour is over, fsyncs when due.
@@ -557,40 +595,38 @@ impl Writer {
         st.disk_bytes.store(files.iter().map(|f| f.bytes).sum(), Relaxed);
     }
 
-    /// The thread's loop, until `stop` is set and the queue is empty.
-    fn run(mut self, rx: Receiver<Entry>, stop: Arc<AtomicBool>, clock: DaemonClock) {
+    /// The thread's loop, until stopped with the queue empty.
+    fn run(mut self, queue: Arc<Queue>, clock: DaemonClock) {
         self.start(clock.now());
-        let mut entries: Vec<Entry> = Vec::with_capacity(MAX_BATCH);
+        let mut batch: Vec<Entry> = Vec::with_capacity(queue.cap);
+        // Busy: the last take found records. Then the writer just sleeps
+        // LINGER between takes, woken by nobody; idle, it waits to be
+        // woken by the first record (or TICK).
+        let mut busy = false;
         loop {
-            let stopping = stop.load(Acquire);
-            let first = if stopping {
-                match rx.try_recv() {
-                    Ok(e) => Some(e),
-                    Err(_) => break,
+            let stopping = {
+                let mut q = queue.lock();
+                if !busy && q.items.is_empty() && !q.stop {
+                    q = queue.ready.wait_timeout(q, TICK).unwrap_or_else(PoisonError::into_inner).0;
                 }
-            } else {
-                match rx.recv_timeout(TICK) {
-                    Ok(e) => Some(e),
-                    Err(RecvTimeoutError::Timeout) => None,
-                    Err(RecvTimeoutError::Disconnected) => break,
+                if q.items.is_empty() && !q.stop {
+                    busy = false;
+                    drop(q);
+                    self.tick(clock.now());
+                    continue;
                 }
+                q.stop
             };
-            if let Some(e) = first {
-                entries.push(e);
-                if !stopping {
-                    std::thread::sleep(LINGER);
-                }
-                loop {
-                    let room = MAX_BATCH - entries.len();
-                    entries.extend(rx.try_iter().take(room));
-                    let full = entries.len() == MAX_BATCH;
-                    self.write(&entries, clock.now());
-                    entries.clear();
-                    if !full {
-                        break;
-                    }
-                }
+            if !stopping {
+                std::thread::sleep(LINGER);
             }
+            std::mem::swap(&mut queue.lock().items, &mut batch);
+            busy = !batch.is_empty();
+            if !busy && stopping {
+                break;
+            }
+            self.write(&batch, clock.now());
+            batch.clear();
             self.tick(clock.now());
         }
         self.close(clock.now());
@@ -600,13 +636,12 @@ impl Writer {
 
 /// Starts the writer thread on `disk` with the `[record]` settings.
 pub fn start(r: &RecordConfig, disk: Box<dyn Disk>, sensors: SensorTable, metrics: Arc<Metrics>, clock: DaemonClock, log_interval_s: f64) -> io::Result<(Recorder, RecordHandle)> {
-    let (tx, rx) = std::sync::mpsc::sync_channel(r.queue);
-    let stop = Arc::new(AtomicBool::new(false));
+    let queue = Arc::new(Queue { state: Mutex::new(Waiting { items: Vec::with_capacity(r.queue), stop: false }), ready: Condvar::new(), cap: r.queue });
     let writer = Writer::new(disk, sensors, WriterSettings::new(r, log_interval_s), metrics.clone());
-    let s = stop.clone();
-    let thread = std::thread::Builder::new().name("skerry-record".into()).spawn(move || writer.run(rx, s, clock))?;
+    let q = queue.clone();
+    let thread = std::thread::Builder::new().name("skerry-record".into()).spawn(move || writer.run(q, clock))?;
     tracing::info!(dir = %r.dir, "recording accepted records");
-    Ok((Recorder { tx, metrics }, RecordHandle { stop, thread: Some(thread) }))
+    Ok((Recorder { queue: queue.clone(), metrics }, RecordHandle { queue, thread: Some(thread) }))
 }
 
 #[cfg(test)]
