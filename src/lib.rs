@@ -12,5 +12,6 @@ pub mod offline;
 pub mod reorder;
 pub mod score;
 pub mod sim;
+pub mod snapshot;
 pub mod stats;
 pub mod time;
