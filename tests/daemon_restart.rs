@@ -302,6 +302,15 @@ async fn restart_continues_as_if_never_stopped() {
     assert_eq!(w.pipeline.engine().picture().len(), 0);
     assert_eq!(w.pipeline.engine().next_track_number(), end_next);
 
+    // Restore turned off: cold too, and numbering still carried on.
+    let mut off = s.cfg.clone();
+    if let Some(r) = &mut off.record {
+        r.restore = false;
+    }
+    let w = warm_start(&off).unwrap();
+    assert_eq!(w.report.cold.as_deref(), Some("[record] restore = false"));
+    assert_eq!((w.pipeline.engine().picture().len(), w.pipeline.engine().next_track_number()), (0, end_next));
+
     // No snapshot: the whole recording rebuilds the picture and the
     // numbering, past the exact duplicate and the torn line.
     for f in SnapshotDir::new(tmp.path(), 3).list().unwrap() {

@@ -259,7 +259,9 @@ pub async fn run(cfg: Config, listeners: Listeners, shutdown: CancellationToken)
         let cfg = cfg.clone();
         tokio::task::spawn_blocking(move || crate::snapshot::warm_start(&cfg)).await??
     };
-    log_restore(&warm.report);
+    if cfg.record.is_some() {
+        log_restore(&warm.report);
+    }
     let (engine, screen, last) = warm.pipeline.into_parts();
     run_from(cfg, listeners, shutdown, engine, screen, last).await
 }

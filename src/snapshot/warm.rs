@@ -2,7 +2,9 @@
 //! recorded record after it, through the screen and the engine in feed
 //! order, as `skerry track` runs a feed.
 //!
-//! What [`warm_start`] does with `[record] restore = true`:
+//! With `restore = false` the start is cold, but track numbers go on
+//! after the highest the snapshots there had given out. What
+//! [`warm_start`] does with `[record] restore = true`:
 //! 1. Tries the snapshots newest first ([`super::files`]). A damaged one
 //!    (truncated, bad checksum, undecodable) is skipped with a warning and
 //!    the next older one is tried.
@@ -237,10 +239,6 @@ pub fn warm_start(cfg: &Config) -> Result<WarmStart, EngineError> {
         report.cold = Some("no [record] dir".into());
         return finish(pipeline, report);
     };
-    if !rec.restore {
-        report.cold = Some("[record] restore = false".into());
-        return finish(pipeline, report);
-    }
     let dir = PathBuf::from(&rec.dir);
     let snapshots = match SnapshotDir::new(&dir, rec.snapshot_keep).list() {
         Ok(s) => s,
@@ -249,6 +247,15 @@ pub fn warm_start(cfg: &Config) -> Result<WarmStart, EngineError> {
             Vec::new()
         }
     };
+    if !rec.restore {
+        // No state, but the numbering still goes on.
+        let next = snapshots.iter().filter_map(|f| f.read().ok()).filter_map(|b| Header::check(&b).ok()).map(|h| h.next_track).max();
+        if let Some(next) = next {
+            pipeline.reserve_track_numbers(next);
+        }
+        report.cold = Some("[record] restore = false".into());
+        return finish(pipeline, report);
+    }
     let mut foreign_next: Option<u64> = None;
     let mut chosen: Option<(PathBuf, Header)> = None;
     for f in &snapshots {
