@@ -13,5 +13,6 @@ pub mod recording;
 pub mod reorder;
 pub mod score;
 pub mod sim;
+pub mod snapshot;
 pub mod stats;
 pub mod time;

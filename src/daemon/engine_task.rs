@@ -6,16 +6,27 @@
 //! the publisher. Subscriptions are made here too, between batches, so a
 //! new subscriber gets the picture and then every later update, with no
 //! gap and no lock on the tracks.
+//!
+//! Snapshots (`[record] snapshot_interval_s`) are taken here too, between
+//! batches, so the state is consistent: the task encodes the state and a
+//! blocking thread writes the file (at most one write at a time; a tick
+//! that finds the last write still going is skipped). At shutdown the
+//! last snapshot is taken after the final records are handled and before
+//! the engine's `finish`, so that a restart continues as if the daemon had
+//! never stopped. After a warm restart, records at or before the restored
+//! key in feed order are refused as late: the engine has handled them.
 
+use super::clock::DaemonClock;
 use super::metrics::Metrics;
 use super::publisher::{Filter, Publisher, SubscribeError, Subscription};
 use super::sequencer::Batch;
-use crate::engine::Engine;
+use crate::engine::{Engine, EngineState};
 use crate::feed::{Record, Screen, TrackRecord, TrackStatus};
+use crate::snapshot::{FeedKey, Fingerprint, SnapshotDir};
 use crate::time::Timestamp;
 use std::sync::Arc;
 use std::sync::atomic::Ordering::Relaxed;
-use std::time::Instant;
+use std::time::{Duration, Instant};
 use tokio::sync::{mpsc, oneshot};
 
 /// What the daemon needs of a tracking engine. [`Engine`] is the real
@@ -31,6 +42,11 @@ pub trait Tracker: Send + 'static {
     fn picture(&self) -> Vec<TrackRecord>;
     /// Live tracks: tentative, confirmed, coasting.
     fn live(&self) -> [u64; 3];
+    /// The state for a snapshot; `None`: this tracker keeps none, and no
+    /// snapshot is written.
+    fn state(&self) -> Option<EngineState> {
+        None
+    }
 }
 
 impl Tracker for Engine {
@@ -50,6 +66,9 @@ impl Tracker for Engine {
         let s = self.stats();
         [s.tentative as u64, s.confirmed as u64, s.coasting as u64]
     }
+    fn state(&self) -> Option<EngineState> {
+        Some(Engine::state(self))
+    }
 }
 
 /// A request to the engine task.
@@ -66,9 +85,25 @@ pub struct EngineSummary {
     pub batches: u64,
 }
 
+/// Where and how often snapshots are written.
+pub struct Snapshots {
+    pub dir: SnapshotDir,
+    pub interval: Duration,
+    /// Of the configuration the tracker was built from.
+    pub fingerprint: Fingerprint,
+    /// Stamps each snapshot, which bounds the recording a restart reads.
+    pub clock: DaemonClock,
+}
+
 pub struct EngineTask<T: Tracker> {
     pub tracker: T,
     pub screen: Screen,
+    /// The greatest feed-order key handled, saved in each snapshot so a
+    /// restart knows which recorded records come after it.
+    pub last: Option<FeedKey>,
+    /// Records at or before this key were handled before a restart.
+    pub floor: Option<FeedKey>,
+    pub snapshots: Option<Snapshots>,
     pub batches: mpsc::Receiver<Batch>,
     pub control: mpsc::Receiver<Control>,
     pub publisher: Publisher,
@@ -76,9 +111,21 @@ pub struct EngineTask<T: Tracker> {
 }
 
 impl<T: Tracker> EngineTask<T> {
+    /// Handles a batch's records and release time; the caller publishes.
     fn batch(&mut self, b: &Batch, out: &mut Vec<TrackRecord>, sum: &mut EngineSummary) {
         let start = Instant::now();
+        let late = super::metrics::reason_index("late");
         for rec in &b.records {
+            if self.floor.is_some_and(|f| !f.precedes(rec)) {
+                self.metrics.reject(Some(rec.sensor()), late);
+                continue;
+            }
+            if self.snapshots.is_some() {
+                let key = FeedKey::of(rec);
+                if self.last.is_none_or(|l| key > l) {
+                    self.last = Some(key);
+                }
+            }
             match self.screen.admit(rec) {
                 Ok(()) => {
                     self.tracker.handle(rec, out);
@@ -94,11 +141,12 @@ impl<T: Tracker> EngineTask<T> {
         if let Some(t) = b.release {
             self.tracker.advance(t, out);
         }
-        if b.last {
-            self.tracker.finish(out);
-        }
         self.metrics.observe_batch(start.elapsed().as_secs_f64());
         sum.batches += 1;
+    }
+
+    /// Publishes what the batch made and updates the gauges.
+    fn publish(&mut self, out: &mut Vec<TrackRecord>, sum: &mut EngineSummary) {
         sum.track_records += out.len() as u64;
         self.metrics.track_records.fetch_add(out.len() as u64, Relaxed);
         self.publisher.publish(out);
@@ -109,25 +157,87 @@ impl<T: Tracker> EngineTask<T> {
         }
     }
 
+    /// The snapshot bytes of the state now and their feed time; None when
+    /// snapshots are off, the tracker keeps none, or nothing was handled.
+    fn encode_snapshot(&self) -> Option<(Vec<u8>, crate::time::Timestamp)> {
+        let s = self.snapshots.as_ref()?;
+        let last = self.last?;
+        let state = self.tracker.state()?;
+        Some((crate::snapshot::encode(&s.fingerprint, state, &self.screen, Some(last), Some(s.clock.now())), last.time))
+    }
+
+    /// Starts writing a snapshot on a blocking thread.
+    fn start_snapshot(&self, fin: bool) -> Option<tokio::task::JoinHandle<()>> {
+        let (bytes, feed_time) = self.encode_snapshot()?;
+        let dir = self.snapshots.as_ref()?.dir.clone();
+        Some(tokio::task::spawn_blocking(move || {
+            let started = Instant::now();
+            match dir.write(&bytes, feed_time) {
+                Ok(path) if fin => {
+                    tracing::info!(file = %path.display(), bytes = bytes.len(), feed_time = %feed_time, seconds = started.elapsed().as_secs_f64(), "snapshot written at shutdown")
+                }
+                Ok(path) => tracing::debug!(file = %path.display(), bytes = bytes.len(), feed_time = %feed_time, "snapshot written"),
+                Err(e) => tracing::warn!(error = %e, "cannot write a snapshot"),
+            }
+        }))
+    }
+
+    /// The last snapshot, after any write still going. (Takes `self` by
+    /// value and gives it back: a borrow held across the awaits would ask
+    /// the tracker to be `Sync`.)
+    async fn final_snapshot(self, writing: &mut Option<tokio::task::JoinHandle<()>>) -> Self {
+        if let Some(h) = writing.take() {
+            let _ = h.await;
+        }
+        let h = self.start_snapshot(true);
+        if let Some(h) = h {
+            let _ = h.await;
+        }
+        self
+    }
+
     pub async fn run(mut self) -> EngineSummary {
         let mut out = Vec::new();
         let mut sum = EngineSummary::default();
         let mut control_open = true;
+        // The gauges show a restored picture before the first batch.
+        for (g, v) in self.metrics.tracks.iter().zip(self.tracker.live()) {
+            g.store(v, Relaxed);
+        }
+        let period = self.snapshots.as_ref().map_or(Duration::from_secs(3600), |s| s.interval);
+        let mut snapshot_tick = tokio::time::interval_at(tokio::time::Instant::now() + period, period);
+        snapshot_tick.set_missed_tick_behavior(tokio::time::MissedTickBehavior::Delay);
+        let mut writing: Option<tokio::task::JoinHandle<()>> = None;
         loop {
             tokio::select! {
                 biased;
+                // First: it is ready once a period, and must not wait
+                // behind a queue of batches that never empties.
+                _ = snapshot_tick.tick(), if self.snapshots.is_some() => {
+                    if writing.as_ref().is_some_and(|h| !h.is_finished()) {
+                        tracing::debug!("the last snapshot is still being written: this one is skipped");
+                    } else {
+                        writing = self.start_snapshot(false);
+                    }
+                }
                 b = self.batches.recv() => match b {
                     Some(b) => {
                         self.metrics.engine_queue_depth.store(self.batches.len(), Relaxed);
                         self.batch(&b, &mut out, &mut sum);
+                        if b.last {
+                            self = self.final_snapshot(&mut writing).await;
+                            self.tracker.finish(&mut out);
+                        }
+                        self.publish(&mut out, &mut sum);
                         if b.last {
                             break;
                         }
                     }
                     None => {
                         // The reorder task ended without a last batch.
+                        self = self.final_snapshot(&mut writing).await;
                         self.tracker.finish(&mut out);
-                        self.publisher.publish(&out);
+                        self.publish(&mut out, &mut sum);
                         break;
                     }
                 },

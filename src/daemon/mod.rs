@@ -24,6 +24,12 @@
 //! the engine (`finish`), the subscribers get what is queued for them (for
 //! up to `serve.shutdown_flush_s`), the servers close, and the recording
 //! writer writes what it holds and closes its file.
+//!
+//! With `[record] dir` and `restore = true`, [`run`] first makes a warm
+//! start ([`crate::snapshot::warm`]): the newest snapshot that restores
+//! cleanly, then every recorded record after it, before it serves, so
+//! that the first subscriber already gets the restored picture. With
+//! `snapshot_interval_s > 0` the engine task writes snapshots there.
 
 pub mod clock;
 pub mod engine_task;
@@ -45,11 +51,12 @@ pub use serve::{ServeArgs, serve_main};
 pub use watch::{WatchArgs, watch_main};
 
 use crate::config::{Config, ServeConfig};
-use crate::engine::{Engine, EngineError};
+use crate::engine::EngineError;
 use crate::feed::Screen;
 use crate::reorder::{Reorder, ReorderConfig};
+use crate::snapshot::{FeedKey, Fingerprint, RestoreReport, SnapshotDir};
 use clock::DaemonClock;
-use engine_task::EngineTask;
+use engine_task::{EngineTask, Snapshots};
 use ingest::{AllowRange, IngestContext, IngestService, LogLimiter};
 use metrics::Metrics;
 use proto::v1;
@@ -252,24 +259,81 @@ pub fn check_settings(cfg: &Config) -> Result<Vec<Vec<AllowRange>>, DaemonError>
 }
 
 /// Runs the service with the real tracking engine until `shutdown` is
-/// cancelled; see the module docs.
+/// cancelled, after a warm start when `[record]` asks for one; see the
+/// module docs.
 pub async fn run(cfg: Config, listeners: Listeners, shutdown: CancellationToken) -> Result<RunSummary, DaemonError> {
-    let engine = Engine::new(&cfg)?;
-    run_with(cfg, listeners, shutdown, engine).await
+    check_settings(&cfg)?;
+    let warm = {
+        let cfg = cfg.clone();
+        tokio::task::spawn_blocking(move || crate::snapshot::warm_start(&cfg)).await??
+    };
+    if cfg.record.is_some() {
+        log_restore(&warm.report);
+    }
+    let (engine, screen, last) = warm.pipeline.into_parts();
+    run_from(cfg, listeners, shutdown, engine, screen, last, None).await
 }
 
-/// [`run`] with any [`Tracker`].
+/// The start-up log line of a warm start.
+fn log_restore(r: &RestoreReport) {
+    let [tentative, confirmed, coasting] = r.tracks;
+    let seconds = r.elapsed.as_secs_f64();
+    let t = &r.tail;
+    match (&r.snapshot, &r.cold) {
+        (_, Some(why)) => tracing::info!(next_track = r.next_track, "starting cold: {why}"),
+        (Some(path), None) => tracing::info!(
+            snapshot = %path.display(),
+            feed_time = %r.snapshot_feed_time.map(|t| t.to_rfc3339()).unwrap_or_default(),
+            tail_files = t.files,
+            tail_records = t.replayed,
+            bad_lines = t.bad_lines,
+            tentative, confirmed, coasting,
+            next_track = r.next_track,
+            seconds,
+            "restored from a snapshot and the recording after it"
+        ),
+        (None, None) if t.files > 0 => tracing::info!(
+            recording_files = t.files,
+            records = t.replayed,
+            bad_lines = t.bad_lines,
+            tentative, confirmed, coasting,
+            next_track = r.next_track,
+            seconds,
+            "no usable snapshot: rebuilt from the whole recording"
+        ),
+        (None, None) => tracing::info!("no snapshot and no recording: starting cold"),
+    }
+    for (path, why) in &t.unreadable {
+        tracing::warn!(file = %path.display(), "recording not read: {why}");
+    }
+}
+
+/// [`run`] with any [`Tracker`], started fresh.
 pub async fn run_with<T: Tracker>(cfg: Config, listeners: Listeners, shutdown: CancellationToken, tracker: T) -> Result<RunSummary, DaemonError> {
-    run_inner(cfg, listeners, shutdown, tracker, None).await
+    // Duplicates only: the time check is made at ingest.
+    let screen = Screen::new(None, cfg.feed.max_time_offset_s);
+    run_from(cfg, listeners, shutdown, tracker, screen, None, None).await
 }
 
 /// [`run_with`], recording (when `[record]` is set) through `disk`
 /// instead of the file system: tests inject failing disks.
 pub async fn run_with_disk<T: Tracker>(cfg: Config, listeners: Listeners, shutdown: CancellationToken, tracker: T, disk: Box<dyn record::Disk>) -> Result<RunSummary, DaemonError> {
-    run_inner(cfg, listeners, shutdown, tracker, Some(disk)).await
+    let screen = Screen::new(None, cfg.feed.max_time_offset_s);
+    run_from(cfg, listeners, shutdown, tracker, screen, None, Some(disk)).await
 }
 
-async fn run_inner<T: Tracker>(cfg: Config, listeners: Listeners, shutdown: CancellationToken, tracker: T, disk: Option<Box<dyn record::Disk>>) -> Result<RunSummary, DaemonError> {
+/// The service around a tracker and screen that have handled the records
+/// up to `last` in feed order (a warm start), or none; recording through
+/// `disk` when given, else the file system.
+async fn run_from<T: Tracker>(
+    cfg: Config,
+    listeners: Listeners,
+    shutdown: CancellationToken,
+    tracker: T,
+    screen: Screen,
+    last: Option<FeedKey>,
+    disk: Option<Box<dyn record::Disk>>,
+) -> Result<RunSummary, DaemonError> {
     let allow = check_settings(&cfg)?;
     let addrs = listeners.local_addrs().map_err(DaemonError::Http)?;
     let s = cfg.serve.clone();
@@ -332,8 +396,15 @@ async fn run_inner<T: Tracker>(cfg: Config, listeners: Listeners, shutdown: Canc
     let engine = tokio::spawn(
         EngineTask {
             tracker,
-            // Duplicates only: the time check is made at ingest.
-            screen: Screen::new(None, cfg.feed.max_time_offset_s),
+            screen,
+            last,
+            floor: last,
+            snapshots: cfg.record.as_ref().filter(|r| r.snapshot_interval_s > 0.0).map(|r| Snapshots {
+                dir: SnapshotDir::new(&r.dir, r.snapshot_keep),
+                interval: Duration::from_secs_f64(r.snapshot_interval_s),
+                fingerprint: Fingerprint::of(&cfg),
+                clock,
+            }),
             batches: batch_rx,
             control: control_rx,
             publisher: Publisher::new(s.subscriber_queue, s.max_subscribers, Some(metrics.clone())),

@@ -37,7 +37,7 @@ pub type StateCov = SMatrix<f64, 5, 5>;
 pub type Gain = SMatrix<f64, 5, 2>;
 
 /// A Gaussian state estimate.
-#[derive(Clone, Copy, Debug, PartialEq)]
+#[derive(Clone, Copy, Debug, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Gaussian {
     pub x: StateVec,
     pub p: StateCov,

@@ -56,7 +56,7 @@ pub struct Imm {
 
 /// The IMM's per-track state: one Gaussian and one probability per model
 /// (entries past the model count are unused).
-#[derive(Clone, Copy, Debug, PartialEq)]
+#[derive(Clone, Copy, Debug, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct ImmState {
     pub comps: [Gaussian; MAX_MODELS],
     pub mu: [f64; MAX_MODELS],

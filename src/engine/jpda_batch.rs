@@ -64,7 +64,7 @@ pub(super) const BATCH_EVENT_BUDGET: u64 = 100_000;
 const NONE: u32 = u32::MAX;
 
 /// Counts of how clusters were solved, for tuning and benches.
-#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
 pub struct JpdaCounters {
     /// Clusters of more than one track.
     pub shared_clusters: u64,
@@ -205,7 +205,7 @@ pub(super) struct Jpda {
     plot_total: Vec<f64>,
     pda_plots: Vec<PdaPlot>,
     solver: ClusterSolver,
-    counters: JpdaCounters,
+    pub(super) counters: JpdaCounters,
 }
 
 impl Jpda {

@@ -46,7 +46,10 @@ pub mod pda;
 pub use jpda_batch::JpdaCounters;
 pub mod measure;
 pub mod sensors;
+pub mod snapshot;
 pub mod track;
+
+pub use snapshot::{EngineState, StateError};
 
 use crate::config::{Association, Config, MotionChoice};
 use crate::feed::tracks::speed_course;
@@ -69,7 +72,7 @@ pub enum EngineError {
 }
 
 /// Live-track counts and work done, for health reporting.
-#[derive(Clone, Debug, Default, PartialEq)]
+#[derive(Clone, Debug, Default, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct EngineStats {
     pub tentative: usize,
     pub confirmed: usize,

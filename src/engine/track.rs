@@ -25,7 +25,7 @@ use std::sync::Arc;
 /// only relaxes the one-plot-per-scan rule for that sensor.
 pub const RECENT_SENSORS: usize = 4;
 
-#[derive(Clone, Debug)]
+#[derive(Clone, Debug, serde::Serialize, serde::Deserialize)]
 pub struct Track {
     pub number: u64,
     pub status: TrackStatus,

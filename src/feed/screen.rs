@@ -20,6 +20,15 @@ pub struct Screen {
     seen: HashSet<u64>,
 }
 
+/// What a [`Screen`] holds between records, for snapshots: the content
+/// hashes are sorted, so equal screens give equal states.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct ScreenState {
+    reference: Option<Timestamp>,
+    current: Option<Timestamp>,
+    seen: Vec<u64>,
+}
+
 impl Screen {
     /// `reference`: the time against which a record's time is judged
     /// plausible (offline: the feed's median time); `max_offset_s`: how far
@@ -31,6 +40,19 @@ impl Screen {
     /// Moves the plausibility reference (live: the daemon's clock).
     pub fn set_reference(&mut self, t: Timestamp) {
         self.reference = Some(t);
+    }
+
+    /// The state to carry over a restart (the offset limit is
+    /// configuration and is given again to [`Screen::from_state`]).
+    pub fn state(&self) -> ScreenState {
+        let mut seen: Vec<u64> = self.seen.iter().copied().collect();
+        seen.sort_unstable();
+        ScreenState { reference: self.reference, current: self.current, seen }
+    }
+
+    /// A screen that continues from `state`.
+    pub fn from_state(state: ScreenState, max_offset_s: f64) -> Self {
+        Screen { reference: state.reference, max_offset_s, current: state.current, seen: state.seen.into_iter().collect() }
     }
 
     /// Only the time check, for use before records are ordered.
