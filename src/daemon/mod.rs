@@ -263,6 +263,9 @@ pub fn check_settings(cfg: &Config) -> Result<Vec<Vec<AllowRange>>, DaemonError>
 /// module docs.
 pub async fn run(cfg: Config, listeners: Listeners, shutdown: CancellationToken) -> Result<RunSummary, DaemonError> {
     check_settings(&cfg)?;
+    if let Some(r) = cfg.record.as_ref().filter(|r| r.restore) {
+        tracing::info!(dir = %r.dir, "warm start: reading the snapshots and the recording");
+    }
     let warm = {
         let cfg = cfg.clone();
         tokio::task::spawn_blocking(move || crate::snapshot::warm_start(&cfg)).await??

@@ -276,7 +276,7 @@ impl Header {
             return Err(SnapshotError::Truncated { got: bytes.len(), need: usize::try_from(need).unwrap_or(usize::MAX) });
         }
         if (bytes.len() as u64) > need {
-            return Err(SnapshotError::Checksum);
+            return Err(SnapshotError::Decode(format!("{} bytes after the end of the snapshot", bytes.len() as u64 - need)));
         }
         if fnv1a64(&[&bytes[..CHECKSUM_AT], &bytes[HEADER_LEN..]]) != h.checksum {
             return Err(SnapshotError::Checksum);
