@@ -166,7 +166,8 @@ pub fn replay_recording(p: &mut Pipeline, dir: &Path, sensors: &SensorTable, flo
         retained.push((held <= RETAINED_RECORDS).then_some(recs));
     }
     sum.lines = feed.lines;
-    sum.bad_lines = feed.counts.total_rejected();
+    // Torn final lines (a crash mid-write) count as bad lines here.
+    sum.bad_lines = feed.counts.total_rejected() + feed.torn.len() as u64;
     drop(feed);
     // later[i]: the earliest record of any file after file i.
     let mut later = vec![None; files.len()];
