@@ -6,6 +6,13 @@
 //! times keep file order), and screened for exact duplicates. Bad lines
 //! are counted per sensor and reason and reported on standard error with
 //! their file and line, a few at a time; they never stop the run.
+//!
+//! [`trade`] adds the trade formats (NMEA 0183 AIS logs, ASTERIX
+//! recordings) and merges them with the JSON files ([`read_inputs`]).
+
+pub mod trade;
+
+pub use trade::{InputError, NmeaInput, TradeInputs, TradeSummary, read_inputs};
 
 use crate::config::Config;
 use crate::feed::screen::median_time;
