@@ -342,15 +342,15 @@ impl FeedCounts {
         use std::fmt::Write;
         let name = |s: &Option<SensorId>| s.map(|i| sensors.name(i).to_string()).unwrap_or_else(|| "(unknown sensor)".into());
         let mut out = String::new();
-        let _ = writeln!(out, "{:<24} {:<20} {:>10}", "sensor", "outcome", "records");
+        let _ = writeln!(out, "{:<24} {:<34} {:>10}", "sensor", "outcome", "records");
         for (s, n) in &self.accepted {
-            let _ = writeln!(out, "{:<24} {:<20} {:>10}", name(s), "accepted", n);
+            let _ = writeln!(out, "{:<24} {:<34} {:>10}", name(s), "accepted", n);
         }
         for ((s, k), n) in &self.rejected {
-            let _ = writeln!(out, "{:<24} {:<20} {:>10}", name(s), format!("rejected:{k}"), n);
+            let _ = writeln!(out, "{:<24} {:<34} {:>10}", name(s), format!("rejected:{k}"), n);
         }
-        let _ = writeln!(out, "{:<24} {:<20} {:>10}", "total", "accepted", self.total_accepted());
-        let _ = writeln!(out, "{:<24} {:<20} {:>10}", "total", "rejected", self.total_rejected());
+        let _ = writeln!(out, "{:<24} {:<34} {:>10}", "total", "accepted", self.total_accepted());
+        let _ = writeln!(out, "{:<24} {:<34} {:>10}", "total", "rejected", self.total_rejected());
         out
     }
 }
