@@ -281,10 +281,20 @@ impl IngestContext {
 }
 
 impl IngestContext {
+    /// Whether `src` may send for `sensor` (its `allow_from`).
+    fn allowed(&self, sensor: SensorId, src: Option<SocketAddr>) -> bool {
+        match (self.allow.get(sensor as usize), src) {
+            (Some(list), Some(src)) => list.is_empty() || list.iter().any(|a| a.contains(src.ip())),
+            _ => true,
+        }
+    }
+
     /// The sensor sent something that is not a record (a service message,
-    /// static data): it is alive.
-    fn heard(&self, sensor: SensorId, now: Timestamp) {
-        self.metrics.sensor(Some(sensor)).last_seen_ns.store(now.unix_nanos(), Relaxed);
+    /// static data): it is alive, if the source may speak for it.
+    fn heard(&self, sensor: SensorId, src: Option<SocketAddr>, now: Timestamp) {
+        if self.allowed(sensor, src) {
+            self.metrics.sensor(Some(sensor)).last_seen_ns.store(now.unix_nanos(), Relaxed);
+        }
     }
 
     /// A trade decoder's reject, counted like a refused record.
@@ -292,7 +302,7 @@ impl IngestContext {
         tally.received += 1;
         self.metrics.sensor(sensor).received.fetch_add(1, Relaxed);
         if let Some(s) = sensor {
-            self.heard(s, now);
+            self.heard(s, src, now);
         }
         self.rejected_key(sensor, reason, what, src, now, tally);
     }
@@ -319,12 +329,13 @@ impl IngestContext {
             Ok(item) => {
                 if let AsterixItem::Service(s) = &item
                     && let Some(p) = s.rotation_period_s
+                    && self.allowed(s.sensor, src)
                 {
                     self.metrics.set_rotation_period(s.sensor, p);
                 }
                 match item.record() {
                     Some(rec) => self.admit(Ok(rec), src, now, &mut tally),
-                    None => self.heard(item.sensor(), now),
+                    None => self.heard(item.sensor(), src, now),
                 }
             }
             Err(rej) => {
@@ -355,7 +366,7 @@ impl IngestContext {
                 let what = format!("NMEA {}", r.key().replace('_', " "));
                 self.trade_reject(Some(sensor), metrics::nmea_reason(r), &what, src, now, &mut tally);
             }
-            _ => self.heard(sensor, now),
+            _ => self.heard(sensor, src, now),
         });
         self.count_lost(dec, lost_before, src, now, &mut tally);
         tally

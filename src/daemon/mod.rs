@@ -312,6 +312,24 @@ pub async fn run(cfg: Config, listeners: Listeners, shutdown: CancellationToken)
 /// [`run`] with any [`Tracker`].
 pub async fn run_with<T: Tracker>(cfg: Config, listeners: Listeners, shutdown: CancellationToken, tracker: T) -> Result<RunSummary, DaemonError> {
     let allow = check_settings(&cfg)?;
+    // The trade listeners' checks are the configuration's validation;
+    // repeated here, before anything starts, for listeners and a
+    // configuration put together in code.
+    let sources = match &listeners.asterix {
+        Some(_) => {
+            let table = SourceTable::from_config(&cfg).map_err(|e| DaemonError::Config { key: "sensors".into(), message: e.to_string() })?;
+            if table.is_empty() {
+                tracing::warn!("the ASTERIX listener is on but no radar has asterix_sac and asterix_sic: every ASTERIX record will be an unknown source");
+            }
+            Some(table)
+        }
+        None => None,
+    };
+    for (sensor, _) in &listeners.nmea {
+        if cfg.sensors.get(*sensor as usize).map(|s| s.kind) != Some(crate::feed::SensorKind::Transponder) {
+            return Err(DaemonError::Config { key: format!("sensors[{sensor}].nmea_udp"), message: "only a transponder sensor has an NMEA listener".into() });
+        }
+    }
     let addrs = listeners.local_addrs().map_err(DaemonError::Http)?;
     let s = cfg.serve.clone();
     let clock = DaemonClock::start();
@@ -342,19 +360,10 @@ pub async fn run_with<T: Tracker>(cfg: Config, listeners: Listeners, shutdown: C
         tracker: ingest_tasks.clone(),
     });
     ingest_tasks.spawn(ingest::udp_task(ctx.clone(), listeners.udp));
-    if let Some(sock) = listeners.asterix {
-        // Checked by the configuration's validation; kept as an error here
-        // for a configuration built in code.
-        let table = SourceTable::from_config(&cfg).map_err(|e| DaemonError::Config { key: "sensors".into(), message: e.to_string() })?;
-        if table.is_empty() {
-            tracing::warn!("serve.asterix_udp is set but no radar has asterix_sac and asterix_sic: every ASTERIX record will be an unknown source");
-        }
+    if let (Some(sock), Some(table)) = (listeners.asterix, sources) {
         ingest_tasks.spawn(ingest::asterix_task(ctx.clone(), sock, AsterixDecoder::new(table)));
     }
     for (sensor, sock) in listeners.nmea {
-        if cfg.sensors.get(sensor as usize).map(|s| s.kind) != Some(crate::feed::SensorKind::Transponder) {
-            return Err(DaemonError::Config { key: format!("sensors[{sensor}].nmea_udp"), message: "only a transponder sensor has an NMEA listener".into() });
-        }
         ingest_tasks.spawn(ingest::nmea_task(ctx.clone(), sock, AisDecoder::new(sensor)));
     }
     ingest_tasks.close();
