@@ -3,7 +3,9 @@
 
 use crate::config::Config;
 use crate::engine::Engine;
-use crate::offline::{read_feeds, report_rejects};
+use crate::offline::trade::{report_trade_rejects, summary_table};
+use crate::offline::{NmeaInput, TradeInputs, read_inputs, report_rejects};
+use crate::time::Timestamp;
 use anyhow::{Context, Result};
 use clap::{Parser, Subcommand};
 use std::io::Write;
@@ -42,11 +44,40 @@ pub struct TrackArgs {
     #[arg(long, short)]
     pub config: PathBuf,
     /// Feed files (JSON Lines), or recording folders; records may be in any order.
-    #[arg(required = true)]
+    #[arg(required_unless_present_any = ["nmea", "asterix"])]
     pub feeds: Vec<PathBuf>,
+    #[command(flatten)]
+    pub trade: TradeArgs,
     /// Write track records here instead of standard output.
     #[arg(long, short)]
     pub out: Option<PathBuf>,
+}
+
+/// Trade-format inputs (CONTRACT.md §8), merged with the feed files.
+#[derive(clap::Args, Debug, Clone, Default)]
+pub struct TradeArgs {
+    /// An NMEA 0183 AIS log of a transponder sensor, as SENSOR=FILE
+    /// (repeatable). Each line needs an IEC 61162-1 tag block with
+    /// c:UNIX_SECONDS; a line without a time is rejected.
+    #[arg(long, value_name = "SENSOR=FILE", value_parser = NmeaInput::parse)]
+    pub nmea: Vec<NmeaInput>,
+    /// A raw ASTERIX recording: data blocks of categories 048, 034, 010
+    /// back to back (repeatable; read in order as one recording). Needs --date.
+    #[arg(long, value_name = "FILE", requires = "date")]
+    pub asterix: Vec<PathBuf>,
+    /// The UTC date on which the ASTERIX recording starts (its first time of day).
+    #[arg(long, value_name = "YYYY-MM-DD", value_parser = parse_date)]
+    pub date: Option<Timestamp>,
+}
+
+impl TradeArgs {
+    pub fn inputs(&self) -> TradeInputs {
+        TradeInputs { nmea: self.nmea.clone(), asterix: self.asterix.clone(), date: self.date }
+    }
+}
+
+fn parse_date(s: &str) -> Result<Timestamp, String> {
+    Timestamp::parse_date(s).map_err(|_| format!("`{s}` is not a date like 2026-05-14"))
 }
 
 #[derive(clap::Args, Debug)]
@@ -55,8 +86,10 @@ pub struct CheckArgs {
     #[arg(long, short)]
     pub config: PathBuf,
     /// Feed files (JSON Lines), or recording folders.
-    #[arg(required = true)]
+    #[arg(required_unless_present_any = ["nmea", "asterix"])]
     pub feeds: Vec<PathBuf>,
+    #[command(flatten)]
+    pub trade: TradeArgs,
 }
 
 pub fn load_config(path: &std::path::Path) -> Result<Config> {
@@ -76,8 +109,10 @@ pub fn run_engine(cfg: &Config, records: &[crate::feed::Record]) -> Result<Vec<c
 
 pub fn track(args: &TrackArgs) -> Result<()> {
     let cfg = load_config(&args.config)?;
-    let feed = read_feeds(&args.feeds, &cfg)?;
-    report_rejects(&feed, &cfg.sensor_table());
+    let (feed, trade) = read_inputs(&args.feeds, &args.trade.inputs(), &cfg)?;
+    let sensors = cfg.sensor_table();
+    report_trade_rejects(&trade, &sensors);
+    report_rejects(&feed, &sensors);
     let mut engine = Engine::new(&cfg)?;
     let sink: Box<dyn Write> = match &args.out {
         Some(p) => Box::new(std::fs::File::create(p).with_context(|| format!("{}: cannot create", p.display()))?),
@@ -124,10 +159,12 @@ pub fn track(args: &TrackArgs) -> Result<()> {
 
 pub fn check(args: &CheckArgs) -> Result<()> {
     let cfg = load_config(&args.config)?;
-    let feed = read_feeds(&args.feeds, &cfg)?;
+    let (feed, trade) = read_inputs(&args.feeds, &args.trade.inputs(), &cfg)?;
     let sensors = cfg.sensor_table();
+    report_trade_rejects(&trade, &sensors);
     report_rejects(&feed, &sensors);
     print!("{}", feed.counts.table(&sensors));
+    print!("{}", summary_table(&trade, &sensors));
     Ok(())
 }
 

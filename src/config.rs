@@ -346,6 +346,13 @@ impl RecordConfig {
     }
 }
 
+/// A listening address as `host:port` with a numeric host
+/// (`127.0.0.1:4103`, `[::]:4104`): the daemon binds it as given, without
+/// name lookup.
+fn socket_addr(s: &str) -> Result<std::net::SocketAddr, String> {
+    s.trim().parse().map_err(|_| format!("`{s}` is not a socket address like 127.0.0.1:4103"))
+}
+
 impl Config {
     /// Loads the defaults, then `file` (if any), then the environment
     /// overrides in `env` (pairs like `SKERRY__SERVE__UDP_ADDR`).
@@ -398,6 +405,7 @@ impl Config {
             return bad("sensors", "too many sensors");
         }
         let mut seen = std::collections::HashSet::new();
+        let mut sources: HashMap<(u8, u8), usize> = HashMap::new();
         for (i, s) in self.sensors.iter().enumerate() {
             let k = |f: &str| format!("sensors[{i}].{f}");
             if s.id.is_empty() {
@@ -441,6 +449,31 @@ impl Config {
                 }
                 SensorKind::Transponder => positive(s.position_sigma_m, "position_sigma_m")?,
             }
+            // Trade inputs (CONTRACT.md §8): an ASTERIX source names a
+            // radar, an NMEA listener belongs to a transponder.
+            match (s.asterix_sac, s.asterix_sic) {
+                (Some(_), None) => return bad(k("asterix_sic"), "must be given with asterix_sac"),
+                (None, Some(_)) => return bad(k("asterix_sac"), "must be given with asterix_sic"),
+                (Some(sac), Some(sic)) => {
+                    if s.kind != SensorKind::Radar {
+                        return bad(k("asterix_sac"), format!("only a radar sensor has an ASTERIX source (this one is a {})", s.kind.as_str()));
+                    }
+                    if let Some(first) = sources.get(&(sac, sic)) {
+                        return bad(k("asterix_sic"), format!("SAC {sac} / SIC {sic} is already used by sensors[{first}]"));
+                    }
+                    sources.insert((sac, sic), i);
+                }
+                (None, None) => {}
+            }
+            if let Some(addr) = &s.nmea_udp {
+                if s.kind != SensorKind::Transponder {
+                    return bad(k("nmea_udp"), format!("only a transponder sensor has an NMEA listener (this one is a {})", s.kind.as_str()));
+                }
+                socket_addr(addr).map_err(|m| (k("nmea_udp"), m))?;
+            }
+        }
+        if let Some(addr) = &self.serve.asterix_udp {
+            socket_addr(addr).map_err(|m| ("serve.asterix_udp".to_string(), m))?;
         }
         let t = &self.tracking;
         if !(t.gate_probability > 0.0 && t.gate_probability < 1.0) {
@@ -597,6 +630,42 @@ association = "gnn"
         }
         let e = load(&format!("{GOOD}\n[record]\ndir = \"\"\n")).unwrap_err().to_string();
         assert!(e.contains("record.dir"), "{e}");
+    }
+
+    #[test]
+    fn trade_keys_are_checked_and_named() {
+        // CONTRACT.md §8: the SAC/SIC pair of a radar, an NMEA listener of
+        // a transponder, the ASTERIX listener of [serve].
+        let radar = "scan_period_s = 2.5";
+        let transponder = "position_sigma_m = 10.0";
+        let ok = load(&GOOD.replace(radar, "scan_period_s = 2.5\nasterix_sac = 25\nasterix_sic = 201").replace(transponder, "position_sigma_m = 10.0\nnmea_udp = \"127.0.0.1:4103\"")).unwrap();
+        assert_eq!((ok.sensors[0].asterix_sac, ok.sensors[0].asterix_sic), (Some(25), Some(201)));
+        assert_eq!(ok.sensors[1].nmea_udp.as_deref(), Some("127.0.0.1:4103"));
+        let ok = load(&format!("{GOOD}\n[serve]\nasterix_udp = \"[::1]:4104\"\n")).unwrap();
+        assert_eq!(ok.serve.asterix_udp.as_deref(), Some("[::1]:4104"));
+
+        let second_radar = "\n[[sensors]]\nid = \"south-quay\"\nkind = \"radar\"\nlat_deg = 56.44\nlon_deg = 7.36\nrange_sigma_m = 10.0\nbearing_sigma_deg = 0.3\nmax_range_m = 9000.0\nscan_period_s = 2.0\n";
+        for (text, key, words) in [
+            (GOOD.replace(radar, "scan_period_s = 2.5\nasterix_sac = 25"), "sensors[0].asterix_sic", "with asterix_sac"),
+            (GOOD.replace(radar, "scan_period_s = 2.5\nasterix_sic = 201"), "sensors[0].asterix_sac", "with asterix_sic"),
+            (GOOD.replace(transponder, "position_sigma_m = 10.0\nasterix_sac = 25\nasterix_sic = 7"), "sensors[1].asterix_sac", "only a radar"),
+            (
+                format!("{}{second_radar}asterix_sac = 25\nasterix_sic = 201\n", GOOD.replace(radar, "scan_period_s = 2.5\nasterix_sac = 25\nasterix_sic = 201")),
+                "sensors[2].asterix_sic",
+                "already used by sensors[0]",
+            ),
+            (GOOD.replace(radar, "scan_period_s = 2.5\nnmea_udp = \"127.0.0.1:4103\""), "sensors[0].nmea_udp", "only a transponder"),
+            (GOOD.replace(transponder, "position_sigma_m = 10.0\nnmea_udp = \"harbour-ais:4103\""), "sensors[1].nmea_udp", "not a socket address"),
+            (GOOD.replace(transponder, "position_sigma_m = 10.0\nnmea_udp = \"127.0.0.1\""), "sensors[1].nmea_udp", "not a socket address"),
+            (format!("{GOOD}\n[serve]\nasterix_udp = \"127.0.0.1:99999\"\n"), "serve.asterix_udp", "not a socket address"),
+            // Out of the u8 range: refused by the loader, naming the key.
+            (GOOD.replace(radar, "scan_period_s = 2.5\nasterix_sac = 256\nasterix_sic = 1"), "asterix_sac", ""),
+        ] {
+            let e = load(&text).unwrap_err().to_string();
+            assert!(e.contains(key) && e.contains(words), "{key}: {e}");
+        }
+        // The same pair on two radars is fine once one SIC differs.
+        load(&format!("{}{second_radar}asterix_sac = 25\nasterix_sic = 202\n", GOOD.replace(radar, "scan_period_s = 2.5\nasterix_sac = 25\nasterix_sic = 201"))).unwrap();
     }
 
     #[test]

@@ -12,6 +12,13 @@
 //! final newline whose last line is not whole JSON, as a crash or a full
 //! disk leaves it) is reported by file and line, skipped, and not counted
 //! as a rejected record.
+//!
+//! [`trade`] adds the trade formats (NMEA 0183 AIS logs, ASTERIX
+//! recordings) and merges them with the JSON files ([`read_inputs`]).
+
+pub mod trade;
+
+pub use trade::{InputError, NmeaInput, TradeInputs, TradeSummary, read_inputs};
 
 use crate::config::Config;
 use crate::feed::screen::median_time;

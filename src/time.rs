@@ -110,7 +110,8 @@ impl Timestamp {
         let days = days_from_civil(y, mo, d);
         // A leap second (:60) is folded onto the next second, as Unix time does.
         let secs = days * 86_400 + (h as i64) * 3600 + (mi as i64) * 60 + s as i64;
-        Ok(Timestamp(secs * NANOS_PER_SEC + ns as i64))
+        // Years after 2262 do not fit in i64 nanoseconds.
+        secs.checked_mul(NANOS_PER_SEC).and_then(|v| v.checked_add(ns as i64)).map(Timestamp).ok_or(TimeError::OutOfSpan)
     }
 
     /// Midnight UTC of the given date.
@@ -181,7 +182,7 @@ impl Timestamp {
             _ => return Err(TimeError::Syntax),
         };
         let t = Self::from_ymd_hms_nanos(y, mo, d, h, mi, sec, ns)?;
-        Ok(Timestamp(t.0 - offset_s * NANOS_PER_SEC))
+        t.0.checked_sub(offset_s * NANOS_PER_SEC).map(Timestamp).ok_or(TimeError::OutOfSpan)
     }
 
     /// Appends the RFC 3339 form: `YYYY-MM-DDTHH:MM:SS[.f]Z`, with the
@@ -262,6 +263,10 @@ mod tests {
         // 2000-02-29 is a leap day (divisible by 400): 951782400 (GNU date).
         assert_eq!(Timestamp::parse_rfc3339("2000-02-29T00:00:00Z").unwrap().unix_nanos(), 951_782_400 * NANOS_PER_SEC);
         assert_eq!(Timestamp::parse_rfc3339("1900-02-28T00:00:00Z"), Err(TimeError::OutOfSpan));
+        // Past the i64 nanosecond range (2262-04-11T23:47:16.854775807Z): refused, not overflowed.
+        assert_eq!(Timestamp::parse_rfc3339("2300-01-01T00:00:00Z"), Err(TimeError::OutOfSpan));
+        assert_eq!(Timestamp::parse_rfc3339("2262-04-11T23:47:16.854775807Z"), Ok(Timestamp::from_unix_nanos(i64::MAX)));
+        assert_eq!(Timestamp::parse_rfc3339("2262-04-11T23:47:16.854775807-00:01"), Err(TimeError::OutOfSpan));
         assert_eq!(Timestamp::parse_rfc3339("2100-02-29T00:00:00Z"), Err(TimeError::FieldRange));
     }
 

@@ -85,6 +85,7 @@ fn report(g: &Generated, cfg: &Config, id: &str, en: (f64, f64), t_s: f64) -> Re
         sog_kn: None,
         cog_deg: None,
         heading_deg: None,
+        vessel: None,
     })
 }
 

@@ -46,6 +46,10 @@ fn track(no: u64, status: TrackStatus, t: f64, en: (f64, f64), vel: (f64, f64)) 
         pos_cov_m2: [[1.0, 0.0], [0.0, 1.0]],
         sensors: vec![],
         identity: None,
+        name: None,
+        ship_type: None,
+        length_m: None,
+        beam_m: None,
         identity_conflict: false,
     }
 }

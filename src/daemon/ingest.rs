@@ -24,10 +24,31 @@
 //!
 //! The queue to the reorder task is bounded and filled with `try_send`: a
 //! full queue drops the record and counts it; ingest never waits.
+//!
+//! # Trade inputs (CONTRACT.md §8)
+//!
+//! - `serve.asterix_udp`: one socket for every radar. Each datagram holds
+//!   one or more ASTERIX data blocks; records map to radars by SAC/SIC.
+//!   Times of day are placed on the day nearest the daemon's clock at
+//!   receipt, which handles the midnight rollover (the decoder's rule). A
+//!   category 034 message's measured rotation period goes to the radar's
+//!   health figures.
+//! - `nmea_udp` of a transponder sensor: one socket per sensor, each with
+//!   its own AIS decoder (reassembly and static data per receiver). A
+//!   sentence without a tag block time is timed by the daemon's clock.
+//! - Decoded records go through [`IngestContext::admit`] like JSON ones:
+//!   the same allow-list, time check, counts and queue. Decoder rejects
+//!   count per sensor (or under the unknown sensor, when the source is not
+//!   known) under the decoders' `feed_key`s (`asterix_unknown_source`,
+//!   `nmea_bad_checksum` …). Items that are neither records nor faults (a
+//!   service message that closes no sector, AIS static data, a fragment)
+//!   are not counted as records, but do mark the sensor as heard from.
 
 use super::clock::DaemonClock;
 use super::metrics::{self, Metrics};
 use super::proto::{self, v1};
+use crate::feed::asterix::{AsterixDecoder, AsterixItem};
+use crate::feed::nmea::{AisDecoder, AisOutcome};
 use crate::feed::{self, Record, Reject, RejectReason, SensorId, SensorTable};
 use crate::time::Timestamp;
 use prost::Message;
@@ -266,6 +287,165 @@ impl IngestContext {
         }
         tally
     }
+}
+
+impl IngestContext {
+    /// Whether `src` may send for `sensor` (its `allow_from`).
+    fn allowed(&self, sensor: SensorId, src: Option<SocketAddr>) -> bool {
+        match (self.allow.get(sensor as usize), src) {
+            (Some(list), Some(src)) => list.is_empty() || list.iter().any(|a| a.contains(src.ip())),
+            _ => true,
+        }
+    }
+
+    /// The sensor sent something that is not a record (a service message,
+    /// static data): it is alive, if the source may speak for it.
+    fn heard(&self, sensor: SensorId, src: Option<SocketAddr>, now: Timestamp) {
+        if self.allowed(sensor, src) {
+            self.metrics.sensor(Some(sensor)).last_seen_ns.store(now.unix_nanos(), Relaxed);
+        }
+    }
+
+    /// A trade decoder's reject, counted like a refused record.
+    fn trade_reject(&self, sensor: Option<SensorId>, reason: usize, what: &str, src: Option<SocketAddr>, now: Timestamp, tally: &mut Tally) {
+        tally.received += 1;
+        self.metrics.sensor(sensor).received.fetch_add(1, Relaxed);
+        if let Some(s) = sensor {
+            self.heard(s, src, now);
+        }
+        self.rejected_key(sensor, reason, what, src, now, tally);
+    }
+
+    /// A datagram over `feed.max_record_bytes`, on a trade socket.
+    fn oversize(&self, sensor: Option<SensorId>, src: Option<SocketAddr>, now: Timestamp, tally: &mut Tally) {
+        let r = Reject { reason: RejectReason::Oversize, sensor };
+        tally.received += 1;
+        self.metrics.sensor(sensor).received.fetch_add(1, Relaxed);
+        self.rejected(&r, src, now, tally);
+    }
+
+    /// Decodes one datagram of ASTERIX data blocks received at `now` and
+    /// queues its records.
+    pub fn asterix_datagram(&self, dec: &mut AsterixDecoder, buf: &[u8], src: Option<SocketAddr>, now: Timestamp) -> Tally {
+        let mut tally = Tally::default();
+        self.metrics.datagrams.fetch_add(1, Relaxed);
+        self.metrics.datagram_bytes.fetch_add(buf.len() as u64, Relaxed);
+        if buf.len() > self.max_record_bytes {
+            self.oversize(None, src, now, &mut tally);
+            return tally;
+        }
+        dec.decode(buf, now, &mut |x| match x {
+            Ok(item) => {
+                if let AsterixItem::Service(s) = &item
+                    && let Some(p) = s.rotation_period_s
+                    && self.allowed(s.sensor, src)
+                {
+                    self.metrics.set_rotation_period(s.sensor, p);
+                }
+                match item.record() {
+                    Some(rec) => self.admit(Ok(rec), src, now, &mut tally),
+                    None => self.heard(item.sensor(), src, now),
+                }
+            }
+            Err(rej) => {
+                let what = format!("ASTERIX {} (category {:03})", rej.reason.key().replace('_', " "), rej.category);
+                self.trade_reject(rej.sensor, metrics::asterix_reason(rej.reason), &what, src, now, &mut tally);
+            }
+        });
+        tally
+    }
+
+    /// Decodes one datagram of NMEA 0183 sentences for the transponder
+    /// sensor of `dec`, received at `now`, and queues its reports.
+    pub fn nmea_datagram(&self, dec: &mut AisDecoder, buf: &[u8], src: Option<SocketAddr>, now: Timestamp) -> Tally {
+        let mut tally = Tally::default();
+        let sensor = dec.sensor();
+        self.metrics.datagrams.fetch_add(1, Relaxed);
+        self.metrics.datagram_bytes.fetch_add(buf.len() as u64, Relaxed);
+        if buf.len() > self.max_record_bytes {
+            self.oversize(Some(sensor), src, now, &mut tally);
+            return tally;
+        }
+        // Fragment sets lost between sentences (timed out, abandoned) show
+        // in the decoder's counts only: count the difference.
+        let lost_before = lost_fragments(dec);
+        dec.decode_datagram(buf, Some(now), &mut |out| match out {
+            AisOutcome::Position(p) => self.admit(Ok(Record::Report(p.report)), src, now, &mut tally),
+            AisOutcome::Rejected(r) => {
+                let what = format!("NMEA {}", r.key().replace('_', " "));
+                self.trade_reject(Some(sensor), metrics::nmea_reason(r), &what, src, now, &mut tally);
+            }
+            _ => self.heard(sensor, src, now),
+        });
+        self.count_lost(dec, lost_before, src, now, &mut tally);
+        tally
+    }
+
+    fn count_lost(&self, dec: &AisDecoder, before: [u64; 2], src: Option<SocketAddr>, now: Timestamp, tally: &mut Tally) {
+        use crate::feed::nmea::AisRejectReason as R;
+        let after = lost_fragments(dec);
+        for (r, n) in [(R::FragmentTimeout, after[0] - before[0]), (R::FragmentAbandoned, after[1] - before[1])] {
+            for _ in 0..n {
+                let what = format!("NMEA {}", r.key().replace('_', " "));
+                self.trade_reject(Some(dec.sensor()), metrics::nmea_reason(r), &what, src, now, tally);
+            }
+        }
+    }
+}
+
+fn lost_fragments(dec: &AisDecoder) -> [u64; 2] {
+    use crate::feed::nmea::AisRejectReason as R;
+    let c = dec.counts();
+    [c.rejected(R::FragmentTimeout), c.rejected(R::FragmentAbandoned)]
+}
+
+/// The ASTERIX receive loop (`serve.asterix_udp`), until cancelled.
+pub async fn asterix_task(ctx: Arc<IngestContext>, sock: tokio::net::UdpSocket, mut dec: AsterixDecoder) {
+    let mut buf = vec![0u8; (ctx.max_record_bytes + 1).clamp(2, 65_536)];
+    loop {
+        tokio::select! {
+            biased;
+            _ = ctx.cancel.cancelled() => break,
+            r = sock.recv_from(&mut buf) => match r {
+                Ok((n, src)) => {
+                    let now = ctx.clock.now();
+                    ctx.asterix_datagram(&mut dec, &buf[..n], Some(src), now);
+                }
+                Err(e) => tracing::debug!(error = %e, "asterix udp receive error"),
+            }
+        }
+    }
+    tracing::debug!("asterix ingest stopped");
+}
+
+/// The NMEA receive loop of one transponder sensor, until cancelled.
+/// Fragment sets left incomplete are dropped once a second, so a lost
+/// fragment is counted even when the receiver then falls silent.
+pub async fn nmea_task(ctx: Arc<IngestContext>, sock: tokio::net::UdpSocket, mut dec: AisDecoder) {
+    let mut buf = vec![0u8; (ctx.max_record_bytes + 1).clamp(2, 65_536)];
+    let mut tick = tokio::time::interval(std::time::Duration::from_secs(1));
+    tick.set_missed_tick_behavior(tokio::time::MissedTickBehavior::Delay);
+    loop {
+        tokio::select! {
+            biased;
+            _ = ctx.cancel.cancelled() => break,
+            r = sock.recv_from(&mut buf) => match r {
+                Ok((n, src)) => {
+                    let now = ctx.clock.now();
+                    ctx.nmea_datagram(&mut dec, &buf[..n], Some(src), now);
+                }
+                Err(e) => tracing::debug!(error = %e, "nmea udp receive error"),
+            },
+            _ = tick.tick(), if dec.pending_fragments() > 0 => {
+                let before = lost_fragments(&dec);
+                let now = ctx.clock.now();
+                dec.expire(now);
+                let mut tally = Tally::default();
+                ctx.count_lost(&dec, before, None, now, &mut tally);
+            }
+        }
+    }
+    tracing::debug!(sensor = ctx.sensors.name(dec.sensor()), "nmea ingest stopped");
 }
 
 /// The UDP receive loop, until cancelled.

@@ -7,6 +7,8 @@
 //! readers take.
 
 use crate::config::Config;
+use crate::feed::asterix::AsterixRejectReason;
+use crate::feed::nmea::AisRejectReason;
 use crate::feed::{RejectReason, SensorId, SensorKind, SensorTable};
 use crate::reorder::{ClockState, SensorClock};
 use crate::time::Timestamp;
@@ -14,20 +16,48 @@ use std::fmt::Write;
 use std::sync::Mutex;
 use std::sync::atomic::{AtomicI64, AtomicU64, AtomicUsize, Ordering::Relaxed};
 
-/// Reject reason keys counted per sensor: the feed's reasons and the
+const N_JSON: usize = crate::feed::RejectReason::ALL_KEYS.len();
+const N_ASTERIX: usize = AsterixRejectReason::ALL.len();
+const N_NMEA: usize = AisRejectReason::ALL.len();
+
+/// Reject reason keys counted per sensor: the feed's reasons, the
 /// daemon's own `not_allowed` (a source address not on the sensor's
-/// allow-list).
-pub const REASONS: [&str; crate::feed::RejectReason::ALL_KEYS.len() + 1] = {
+/// allow-list), then the trade decoders' reasons (`asterix_…`, `nmea_…`:
+/// their `feed_key`s).
+pub const REASONS: [&str; N_JSON + 1 + N_ASTERIX + N_NMEA] = {
     let keys = crate::feed::RejectReason::ALL_KEYS;
-    let mut out = [""; crate::feed::RejectReason::ALL_KEYS.len() + 1];
+    let mut out = [""; N_JSON + 1 + N_ASTERIX + N_NMEA];
     let mut i = 0;
     while i < keys.len() {
         out[i] = keys[i];
         i += 1;
     }
     out[i] = "not_allowed";
+    i += 1;
+    let mut k = 0;
+    while k < N_ASTERIX {
+        out[i] = AsterixRejectReason::ALL[k].feed_key();
+        i += 1;
+        k += 1;
+    }
+    k = 0;
+    while k < N_NMEA {
+        out[i] = AisRejectReason::ALL[k].feed_key();
+        i += 1;
+        k += 1;
+    }
     out
 };
+
+/// The index in [`REASONS`] of an ASTERIX reject reason.
+pub fn asterix_reason(r: AsterixRejectReason) -> usize {
+    N_JSON + 1 + AsterixRejectReason::ALL.iter().position(|x| *x == r).unwrap_or(0)
+}
+
+/// The index in [`REASONS`] of an AIS reject reason.
+pub fn nmea_reason(r: AisRejectReason) -> usize {
+    N_JSON + 1 + N_ASTERIX + AisRejectReason::ALL.iter().position(|x| *x == r).unwrap_or(0)
+}
 
 pub fn reason_index(key: &str) -> usize {
     REASONS.iter().position(|k| *k == key).unwrap_or(1)
@@ -40,7 +70,6 @@ pub fn reason_of(r: &RejectReason) -> usize {
 /// Upper bounds of the batch-time histogram (s).
 pub const BATCH_BUCKETS: [f64; 12] = [0.0001, 0.00025, 0.0005, 0.001, 0.0025, 0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 1.0];
 
-#[derive(Default)]
 pub struct SensorCounters {
     /// Records that named this sensor (or, for the extra slot, none).
     pub received: AtomicU64,
@@ -51,16 +80,41 @@ pub struct SensorCounters {
     pub rejected: [AtomicU64; REASONS.len()],
     /// Daemon clock of the last record, ns since the epoch; 0: never.
     pub last_seen_ns: AtomicI64,
+    /// Radars: the antenna rotation period last measured (ASTERIX
+    /// I034/041), as f64 bits; 0: none yet.
+    pub rotation_period_bits: AtomicU64,
+}
+
+// Written out: `Default` is derived for arrays of up to 32 only.
+impl Default for SensorCounters {
+    fn default() -> Self {
+        SensorCounters {
+            received: AtomicU64::new(0),
+            accepted: AtomicU64::new(0),
+            processed: AtomicU64::new(0),
+            rejected: std::array::from_fn(|_| AtomicU64::new(0)),
+            last_seen_ns: AtomicI64::new(0),
+            rotation_period_bits: AtomicU64::new(0),
+        }
+    }
 }
 
 /// One sensor's figures at an instant.
-#[derive(Clone, Debug, Default, PartialEq)]
+#[derive(Clone, Debug, PartialEq)]
 pub struct SensorSnapshot {
     pub received: u64,
     pub accepted: u64,
     pub processed: u64,
     pub rejected: [u64; REASONS.len()],
     pub last_seen: Option<Timestamp>,
+    /// The radar's measured antenna rotation period (s), if reported.
+    pub rotation_period_s: Option<f64>,
+}
+
+impl Default for SensorSnapshot {
+    fn default() -> Self {
+        SensorSnapshot { received: 0, accepted: 0, processed: 0, rejected: [0; REASONS.len()], last_seen: None, rotation_period_s: None }
+    }
 }
 
 pub struct Metrics {
@@ -169,6 +223,17 @@ impl Metrics {
             processed: c.processed.load(Relaxed),
             rejected: std::array::from_fn(|i| c.rejected[i].load(Relaxed)),
             last_seen: (ns != 0).then(|| Timestamp::from_unix_nanos(ns)),
+            rotation_period_s: match c.rotation_period_bits.load(Relaxed) {
+                0 => None,
+                b => Some(f64::from_bits(b)),
+            },
+        }
+    }
+
+    /// A radar's measured antenna rotation period (s).
+    pub fn set_rotation_period(&self, s: SensorId, period_s: f64) {
+        if period_s.is_finite() && period_s > 0.0 {
+            self.sensor(Some(s)).rotation_period_bits.store(period_s.to_bits(), Relaxed);
         }
     }
 
@@ -271,6 +336,12 @@ impl Metrics {
         for (i, (_, n)) in configured.iter().enumerate() {
             let _ = writeln!(o, "skerry_sensor_records_per_second{{sensor=\"{n}\"}} {}", num(rates.get(i).copied().unwrap_or(0.0)));
         }
+        let _ = writeln!(o, "# HELP skerry_radar_rotation_period_seconds Antenna rotation period the radar measured (ASTERIX I034/041; absent: not reported).\n# TYPE skerry_radar_rotation_period_seconds gauge");
+        for ((_, n), s) in configured.iter().zip(&snaps) {
+            if let Some(p) = s.rotation_period_s {
+                let _ = writeln!(o, "skerry_radar_rotation_period_seconds{{sensor=\"{n}\"}} {}", num(p));
+            }
+        }
         let clocks = self.clocks.lock().map(|c| c.clone()).unwrap_or_default();
         let _ = writeln!(o, "# HELP skerry_sensor_clock_offset_seconds Daemon clock minus the sensor's record times, smoothed (positive: the sensor is behind).\n# TYPE skerry_sensor_clock_offset_seconds gauge");
         for c in &clocks {
@@ -365,6 +436,21 @@ mod tests {
         for k in RejectReason::ALL_KEYS {
             assert_eq!(REASONS[reason_index(k)], k);
         }
+    }
+
+    #[test]
+    fn trade_reasons_follow_the_feed_keys() {
+        assert_eq!(REASONS[reason_index("not_allowed")], "not_allowed");
+        for r in AsterixRejectReason::ALL {
+            assert_eq!(REASONS[asterix_reason(r)], r.feed_key());
+        }
+        for r in AisRejectReason::ALL {
+            assert_eq!(REASONS[nmea_reason(r)], r.feed_key());
+        }
+        let mut keys = REASONS.to_vec();
+        keys.sort_unstable();
+        keys.dedup();
+        assert_eq!(keys.len(), REASONS.len(), "reason keys clash");
     }
 
     #[test]

@@ -3,6 +3,7 @@
 //!
 //! ```text
 //!  UDP (JSON lines | 0x00+protobuf) ─┐
+//!  UDP ASTERIX, UDP NMEA per sensor ─┤
 //!  gRPC Ingest.Send (client stream) ─┴► ingest ──► reorder task ──► engine task ──► publisher ──► Picture.Subscribe streams
 //!    decode, check, count      bounded   (feed-time   bounded  (screen,   try_send per
 //!    (never waits: a full      queue     ordering)    queue    Tracker)   subscriber queue)
@@ -52,7 +53,9 @@ pub use watch::{WatchArgs, watch_main};
 
 use crate::config::{Config, ServeConfig};
 use crate::engine::EngineError;
-use crate::feed::Screen;
+use crate::feed::asterix::{AsterixDecoder, SourceTable};
+use crate::feed::nmea::AisDecoder;
+use crate::feed::{Screen, SensorId};
 use crate::reorder::{Reorder, ReorderConfig};
 use crate::snapshot::{FeedKey, Fingerprint, RestoreReport, SnapshotDir};
 use clock::DaemonClock;
@@ -97,14 +100,28 @@ pub struct Listeners {
     pub udp: UdpSocket,
     pub grpc: TcpListener,
     pub http: TcpListener,
+    /// `serve.asterix_udp` (CONTRACT.md §8), if configured.
+    pub asterix: Option<UdpSocket>,
+    /// The `nmea_udp` socket of each transponder sensor that has one, by
+    /// sensor index.
+    pub nmea: Vec<(SensorId, UdpSocket)>,
 }
 
 /// The addresses the [`Listeners`] are bound to.
-#[derive(Copy, Clone, Debug, PartialEq, Eq)]
+#[derive(Clone, Debug, PartialEq, Eq)]
 pub struct LocalAddrs {
     pub udp: SocketAddr,
     pub grpc: SocketAddr,
     pub http: SocketAddr,
+    pub asterix: Option<SocketAddr>,
+    pub nmea: Vec<(SensorId, SocketAddr)>,
+}
+
+impl LocalAddrs {
+    /// The NMEA address of a sensor, if it has one.
+    pub fn nmea_of(&self, sensor: SensorId) -> Option<SocketAddr> {
+        self.nmea.iter().find(|(s, _)| *s == sensor).map(|(_, a)| *a)
+    }
 }
 
 fn parse_addr(key: &str, s: &str) -> Result<SocketAddr, DaemonError> {
@@ -112,12 +129,48 @@ fn parse_addr(key: &str, s: &str) -> Result<SocketAddr, DaemonError> {
 }
 
 impl Listeners {
-    /// Binds the addresses of the `[serve]` section.
+    /// Binds the addresses of the `[serve]` section (with
+    /// `asterix_udp`, if set; the sensors' `nmea_udp` need
+    /// [`Listeners::bind_config`]).
     pub async fn bind(serve: &ServeConfig) -> Result<Listeners, DaemonError> {
         let udp = parse_addr("serve.udp_addr", &serve.udp_addr)?;
         let grpc = parse_addr("serve.grpc_addr", &serve.grpc_addr)?;
         let http = parse_addr("serve.http_addr", &serve.http_addr)?;
-        Self::bind_addrs(udp, grpc, http, serve.udp_recv_buffer_bytes).await
+        let mut l = Self::bind_addrs(udp, grpc, http, serve.udp_recv_buffer_bytes).await?;
+        if let Some(a) = &serve.asterix_udp {
+            let addr = parse_addr("serve.asterix_udp", a)?;
+            l.asterix = Some(trade_socket("ASTERIX UDP", addr, serve.udp_recv_buffer_bytes)?);
+        }
+        Ok(l)
+    }
+
+    /// Binds every address of the configuration: `[serve]` and the
+    /// transponders' `nmea_udp`.
+    pub async fn bind_config(cfg: &Config) -> Result<Listeners, DaemonError> {
+        let mut l = Self::bind(&cfg.serve).await?;
+        for (i, s) in cfg.sensors.iter().enumerate() {
+            if let Some(a) = &s.nmea_udp {
+                let addr = parse_addr(&format!("sensors[{i}].nmea_udp"), a)?;
+                l.nmea.push((i as SensorId, trade_socket("NMEA UDP", addr, cfg.serve.udp_recv_buffer_bytes)?));
+            }
+        }
+        Ok(l)
+    }
+
+    /// As [`Listeners::loopback`], plus a port-0 loopback socket for each
+    /// trade listener the configuration asks for (tests).
+    pub async fn loopback_for(cfg: &Config) -> Result<Listeners, DaemonError> {
+        let any: SocketAddr = SocketAddr::from(([127, 0, 0, 1], 0));
+        let mut l = Self::loopback().await?;
+        if cfg.serve.asterix_udp.is_some() {
+            l.asterix = Some(trade_socket("ASTERIX UDP", any, 8 << 20)?);
+        }
+        for (i, s) in cfg.sensors.iter().enumerate() {
+            if s.nmea_udp.is_some() {
+                l.nmea.push((i as SensorId, trade_socket("NMEA UDP", any, 1 << 20)?));
+            }
+        }
+        Ok(l)
     }
 
     /// Binds the given addresses; the UDP socket asks for a receive buffer
@@ -127,7 +180,7 @@ impl Listeners {
         let udp_sock = udp_socket(udp, udp_recv_buffer).map_err(bind_err("UDP", udp))?;
         let grpc_l = TcpListener::bind(grpc).await.map_err(bind_err("gRPC", grpc))?;
         let http_l = TcpListener::bind(http).await.map_err(bind_err("HTTP", http))?;
-        Ok(Listeners { udp: udp_sock, grpc: grpc_l, http: http_l })
+        Ok(Listeners { udp: udp_sock, grpc: grpc_l, http: http_l, asterix: None, nmea: Vec::new() })
     }
 
     /// Binds every socket to port 0 on 127.0.0.1 (tests).
@@ -137,8 +190,14 @@ impl Listeners {
     }
 
     pub fn local_addrs(&self) -> std::io::Result<LocalAddrs> {
-        Ok(LocalAddrs { udp: self.udp.local_addr()?, grpc: self.grpc.local_addr()?, http: self.http.local_addr()? })
+        let nmea = self.nmea.iter().map(|(s, u)| u.local_addr().map(|a| (*s, a))).collect::<std::io::Result<_>>()?;
+        let asterix = self.asterix.as_ref().map(|u| u.local_addr()).transpose()?;
+        Ok(LocalAddrs { udp: self.udp.local_addr()?, grpc: self.grpc.local_addr()?, http: self.http.local_addr()?, asterix, nmea })
     }
+}
+
+fn trade_socket(what: &'static str, addr: SocketAddr, recv_buffer: usize) -> Result<UdpSocket, DaemonError> {
+    udp_socket(addr, recv_buffer).map_err(|source| DaemonError::Bind { what, addr: addr.to_string(), source })
 }
 
 /// A UDP socket with its receive buffer sized: bursts of plots arrive
@@ -338,6 +397,24 @@ async fn run_from<T: Tracker>(
     disk: Option<Box<dyn record::Disk>>,
 ) -> Result<RunSummary, DaemonError> {
     let allow = check_settings(&cfg)?;
+    // The trade listeners' checks are the configuration's validation;
+    // repeated here, before anything starts, for listeners and a
+    // configuration put together in code.
+    let sources = match &listeners.asterix {
+        Some(_) => {
+            let table = SourceTable::from_config(&cfg).map_err(|e| DaemonError::Config { key: "sensors".into(), message: e.to_string() })?;
+            if table.is_empty() {
+                tracing::warn!("the ASTERIX listener is on but no radar has asterix_sac and asterix_sic: every ASTERIX record will be an unknown source");
+            }
+            Some(table)
+        }
+        None => None,
+    };
+    for (sensor, _) in &listeners.nmea {
+        if cfg.sensors.get(*sensor as usize).map(|s| s.kind) != Some(crate::feed::SensorKind::Transponder) {
+            return Err(DaemonError::Config { key: format!("sensors[{sensor}].nmea_udp"), message: "only a transponder sensor has an NMEA listener".into() });
+        }
+    }
     let addrs = listeners.local_addrs().map_err(DaemonError::Http)?;
     let s = cfg.serve.clone();
     let clock = DaemonClock::start();
@@ -378,6 +455,12 @@ async fn run_from<T: Tracker>(
         recorder,
     });
     ingest_tasks.spawn(ingest::udp_task(ctx.clone(), listeners.udp));
+    if let (Some(sock), Some(table)) = (listeners.asterix, sources) {
+        ingest_tasks.spawn(ingest::asterix_task(ctx.clone(), sock, AsterixDecoder::new(table)));
+    }
+    for (sensor, sock) in listeners.nmea {
+        ingest_tasks.spawn(ingest::nmea_task(ctx.clone(), sock, AisDecoder::new(sensor)));
+    }
     ingest_tasks.close();
 
     // The reorder task ticks often enough to release a quiet feed close
@@ -443,6 +526,12 @@ async fn run_from<T: Tracker>(
     let router = http::router(http::HttpState { metrics: metrics.clone(), clock });
     let http_task = tokio::spawn(axum::serve(listeners.http, router).with_graceful_shutdown(drained.clone().cancelled_owned()).into_future());
     tracing::info!(udp = %addrs.udp, grpc = %addrs.grpc, http = %addrs.http, sensors = cfg.sensors.len(), "skerry serving");
+    if let Some(a) = addrs.asterix {
+        tracing::info!(asterix_udp = %a, "listening for ASTERIX");
+    }
+    for (s, a) in &addrs.nmea {
+        tracing::info!(sensor = ctx.sensors.name(*s), nmea_udp = %a, "listening for NMEA");
+    }
 
     shutdown.cancelled().await;
     tracing::info!("shutting down: ingest stopped, draining the reorder buffer through the engine");

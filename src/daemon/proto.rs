@@ -15,7 +15,7 @@ pub mod v1 {
 /// The encoded descriptor set of the .proto files, for server reflection.
 pub const FILE_DESCRIPTOR_SET: &[u8] = include_bytes!(concat!(env!("OUT_DIR"), "/skerry_descriptor.bin"));
 
-use crate::feed::{Detection, Record, Reject, RejectReason, Report, ScanEnd, SensorId, SensorKind, SensorTable, TrackRecord, TrackStatus};
+use crate::feed::{Detection, Record, Reject, RejectReason, Report, ScanEnd, SensorId, SensorKind, SensorTable, TrackRecord, TrackStatus, VesselInfo};
 use crate::time::Timestamp;
 use std::sync::Arc;
 use v1::feed_record::Record as Pb;
@@ -92,7 +92,18 @@ pub fn to_record(m: &v1::FeedRecord, table: &SensorTable) -> Result<Record, Reje
             let sog_kn = r.sog_kn.map(|v| in_range(v, v >= 0.0, "sog_kn", s)).transpose()?;
             let cog_deg = r.cog_deg.map(|v| bearing(v, "cog_deg", s)).transpose()?;
             let heading_deg = r.heading_deg.map(|v| bearing(v, "heading_deg", s)).transpose()?;
-            Ok(Record::Report(Report { sensor, time, id: Arc::from(id), lat_deg, lon_deg, sog_kn, cog_deg, heading_deg }))
+            let name = match r.name.as_deref() {
+                Some("") => return Err(reject(RejectReason::OutOfRange("name"), s)),
+                n => n.map(Arc::from),
+            };
+            let ship_type = match r.ship_type {
+                Some(t) => Some(u8::try_from(t).map_err(|_| reject(RejectReason::OutOfRange("ship_type"), s))?),
+                None => None,
+            };
+            let length_m = r.length_m.map(|v| in_range(v, v > 0.0, "length_m", s)).transpose()?;
+            let beam_m = r.beam_m.map(|v| in_range(v, v > 0.0, "beam_m", s)).transpose()?;
+            let vessel = VesselInfo { name, ship_type, length_m, beam_m }.shared();
+            Ok(Record::Report(Report { sensor, time, id: Arc::from(id), lat_deg, lon_deg, sog_kn, cog_deg, heading_deg, vessel }))
         }
     }
 }
@@ -121,6 +132,10 @@ pub fn from_record(rec: &Record, table: &SensorTable) -> v1::FeedRecord {
             sog_kn: r.sog_kn,
             cog_deg: r.cog_deg,
             heading_deg: r.heading_deg,
+            name: r.vessel.as_ref().and_then(|v| v.name.as_ref()).map(|n| n.to_string()),
+            ship_type: r.vessel.as_ref().and_then(|v| v.ship_type).map(u32::from),
+            length_m: r.vessel.as_ref().and_then(|v| v.length_m),
+            beam_m: r.vessel.as_ref().and_then(|v| v.beam_m),
         }),
     };
     v1::FeedRecord { record: Some(record) }
@@ -191,6 +206,12 @@ pub fn json_line_to_proto(line: &str) -> Option<v1::FeedRecord> {
             sog_kn: f("sog_kn"),
             cog_deg: f("cog_deg"),
             heading_deg: f("heading_deg"),
+            name: s("name"),
+            // Too large for the field: sent as the largest value, which the
+            // daemon rejects as out of range, as it would the JSON line.
+            ship_type: u("ship_type").map(|t| u32::try_from(t).unwrap_or(u32::MAX)),
+            length_m: f("length_m"),
+            beam_m: f("beam_m"),
         }),
         _ => return None,
     };
@@ -236,6 +257,10 @@ pub fn track_to_proto(t: &TrackRecord) -> v1::TrackRecord {
         pos_cov_m2: vec![c[0][0], c[0][1], c[1][0], c[1][1]],
         sensors: t.sensors.iter().map(|s| s.to_string()).collect(),
         identity: t.identity.as_ref().map(|s| s.to_string()),
+        name: t.name.as_ref().map(|s| s.to_string()),
+        ship_type: t.ship_type.map(u32::from),
+        length_m: t.length_m,
+        beam_m: t.beam_m,
     }
 }
 
@@ -271,6 +296,11 @@ pub fn track_from_proto(t: &v1::TrackRecord) -> Result<TrackRecord, TrackConvert
         pos_cov_m2: c,
         sensors: t.sensors.iter().map(|s| Arc::from(s.as_str())).collect(),
         identity: t.identity.as_deref().map(Arc::from),
+        name: t.name.as_deref().map(Arc::from),
+        // A ship type beyond 255 cannot come from skerry: dropped.
+        ship_type: t.ship_type.and_then(|v| u8::try_from(v).ok()),
+        length_m: t.length_m,
+        beam_m: t.beam_m,
         // Not carried by the protobuf record (version 1 has no field for it).
         identity_conflict: false,
     })
@@ -315,6 +345,11 @@ mod tests {
             REP.replace("\"235000001\"", "\"\""),
             REP.replace(r#""id":"235000001","#, ""),
             REP.replace("ais", "north-mast"),
+            REP.replace("}", r#","name":"SKERRY ONE","ship_type":52,"length_m":31.0,"beam_m":9.5}"#),
+            REP.replace("}", r#","name":""}"#),
+            REP.replace("}", r#","ship_type":256}"#),
+            REP.replace("}", r#","length_m":0}"#),
+            REP.replace("}", r#","beam_m":-1.5}"#),
         ];
         for l in &lines {
             let want = decode_line(l.as_bytes(), &t);
@@ -339,7 +374,8 @@ mod tests {
     #[test]
     fn records_round_trip() {
         let t = table();
-        for l in [DET, END, REP] {
+        let rep_static = REP.replace("}", r#","name":"SKERRY ONE","ship_type":52,"length_m":31.0,"beam_m":9.5}"#);
+        for l in [DET, END, REP, &rep_static] {
             let r = decode_line(l.as_bytes(), &t).unwrap();
             assert_eq!(to_record(&from_record(&r, &t), &t).unwrap(), r);
         }

@@ -255,6 +255,10 @@ mod tests {
             pos_cov_m2: [[1.0, 0.0], [0.0, 1.0]],
             sensors: vec![],
             identity: None,
+            name: None,
+            ship_type: None,
+            length_m: None,
+            beam_m: None,
             identity_conflict: false,
         }
     }

@@ -70,7 +70,7 @@ pub fn serve_main(args: &ServeArgs) -> anyhow::Result<()> {
     }
     let rt = tokio::runtime::Builder::new_multi_thread().enable_all().build()?;
     rt.block_on(async move {
-        let listeners = Listeners::bind(&cfg.serve).await?;
+        let listeners = Listeners::bind_config(&cfg).await?;
         let token = CancellationToken::new();
         cancel_on_signal(token.clone());
         run(cfg, listeners, token).await?;

@@ -21,6 +21,11 @@
 //!   with that identity.
 //! - Radar plots near an identified track still go through the normal
 //!   association (GNN or JPDA); the identity only rides on the track.
+//! - Static data rides with the identity: a report that updates or starts
+//!   a track and carries `vessel` data (name, ship type, length, beam)
+//!   replaces the track's, so its records show what the vessel last said
+//!   about itself. A report without any leaves the track's as it was; a
+//!   conflicting report, which is not used, changes nothing.
 
 use super::*;
 
@@ -39,7 +44,9 @@ impl Engine {
             let g = t.est;
             let at = Vector2::new(g.x[0] + g.x[2] * dt, g.x[1] + g.x[3] * dt);
             if (at - z).norm() <= self.identity_gate_m {
-                self.tracks[idx as usize].identity_conflict = false;
+                let t = &mut self.tracks[idx as usize];
+                t.identity_conflict = false;
+                take_vessel(t, r);
                 self.update_track(idx, &z, &rcov, r.time, r.sensor, out);
             } else {
                 self.stats.identity_conflicts += 1;
@@ -88,17 +95,28 @@ impl Engine {
         self.report_cand = cands;
         match best {
             Some((_, idx)) => {
-                self.tracks[idx as usize].identity = Some(r.id.clone());
+                let t = &mut self.tracks[idx as usize];
+                t.identity = Some(r.id.clone());
+                take_vessel(t, r);
                 self.identities.insert(r.id.clone(), idx);
                 self.update_track(idx, &z, &rcov, r.time, r.sensor, out);
             }
             None => {
                 let idx = self.new_track(&z, &rcov, r.time, r.sensor);
-                self.tracks[idx as usize].identity = Some(r.id.clone());
+                let t = &mut self.tracks[idx as usize];
+                t.identity = Some(r.id.clone());
+                take_vessel(t, r);
                 self.identities.insert(r.id.clone(), idx);
                 let t = &self.tracks[idx as usize];
                 out.push(self.record_of(t, r.time, &t.est, Some(r.sensor)));
             }
         }
+    }
+}
+
+/// A report's static data, if it has any, becomes the track's.
+fn take_vessel(t: &mut Track, r: &Report) {
+    if r.vessel.is_some() {
+        t.vessel.clone_from(&r.vessel);
     }
 }

@@ -407,6 +407,10 @@ impl Engine {
             pos_cov_m2: [[g.p[(0, 0)], g.p[(0, 1)]], [g.p[(1, 0)], g.p[(1, 1)]]],
             sensors: sensor.map(|s| vec![self.sensor_names[s as usize].clone()]).unwrap_or_default(),
             identity: t.identity.clone(),
+            name: t.vessel.as_ref().and_then(|v| v.name.clone()),
+            ship_type: t.vessel.as_ref().and_then(|v| v.ship_type),
+            length_m: t.vessel.as_ref().and_then(|v| v.length_m),
+            beam_m: t.vessel.as_ref().and_then(|v| v.beam_m),
             identity_conflict: t.identity_conflict,
         }
     }

@@ -16,7 +16,7 @@
 
 use super::filter::Gaussian;
 use super::imm::ImmState;
-use crate::feed::{SensorId, TrackStatus};
+use crate::feed::{SensorId, TrackStatus, VesselInfo};
 use crate::time::Timestamp;
 use std::sync::Arc;
 
@@ -45,6 +45,8 @@ pub struct Track {
     /// A report with this track's identity fell outside the identity gate
     /// and no consistent report has come since.
     pub identity_conflict: bool,
+    /// Static data of the identity, from its latest report that had any.
+    pub vessel: Option<Arc<VesselInfo>>,
     /// Grid cell the track is filed under.
     pub cell: (i32, i32),
     /// Checked against every plot instead of through the grid.
@@ -94,6 +96,7 @@ impl Track {
             recent,
             identity: None,
             identity_conflict: false,
+            vessel: None,
             cell: (0, 0),
             wide: false,
             visit: 0,

@@ -7,11 +7,12 @@
 //! field was missing, of the wrong type, non-finite or out of range. Both
 //! paths end in the same field checks, so they cannot disagree.
 
-use super::{Detection, Record, Reject, RejectReason, Report, ScanEnd, SensorId, SensorKind, SensorTable};
+use super::{Detection, Record, Reject, RejectReason, Report, ScanEnd, SensorId, SensorKind, SensorTable, VesselInfo};
 use crate::time::Timestamp;
 use serde::Deserialize;
 use std::borrow::Cow;
 use std::fmt::Write;
+use std::sync::Arc;
 
 /// The fields of any record type, as read from the line.
 #[derive(Deserialize, Default, Debug)]
@@ -35,6 +36,11 @@ struct Fields<'a> {
     sog_kn: Option<f64>,
     cog_deg: Option<f64>,
     heading_deg: Option<f64>,
+    #[serde(borrow)]
+    name: Option<Cow<'a, str>>,
+    ship_type: Option<u64>,
+    length_m: Option<f64>,
+    beam_m: Option<f64>,
 }
 
 fn reject(reason: RejectReason, sensor: Option<SensorId>) -> Reject {
@@ -135,7 +141,7 @@ fn slow_fields<'a>(text: &'a str, sensors: &SensorTable) -> Result<Fields<'a>, R
     let wanted: &[&'static str] = match kind {
         "detection" => &["sensor", "time", "scan", "range_m", "bearing_deg", "radial_speed_mps", "snr_db"],
         "scan_end" => &["sensor", "time", "scan", "sector_deg"],
-        "report" => &["sensor", "time", "id", "lat_deg", "lon_deg", "sog_kn", "cog_deg", "heading_deg"],
+        "report" => &["sensor", "time", "id", "lat_deg", "lon_deg", "sog_kn", "cog_deg", "heading_deg", "name", "ship_type", "length_m", "beam_m"],
         _ => return Err(reject(RejectReason::UnknownType, s)),
     };
     let mut f = Fields { kind: Some(Cow::Owned(kind.to_string())), ..Fields::default() };
@@ -162,6 +168,19 @@ fn slow_fields<'a>(text: &'a str, sensors: &SensorTable) -> Result<Fields<'a>, R
             "sensor" => f.sensor = Some(string()?),
             "time" => f.time = Some(string()?),
             "id" => f.id = Some(string()?),
+            "name" => f.name = Some(string()?),
+            "ship_type" => {
+                if is_marker {
+                    return Err(reject(RejectReason::NonFinite(key), s));
+                }
+                f.ship_type = Some(match v {
+                    serde_json::Value::Number(n) if n.is_u64() => n.as_u64().unwrap_or(0),
+                    serde_json::Value::Number(n) if n.is_i64() => return Err(reject(RejectReason::OutOfRange(key), s)),
+                    _ => return Err(reject(RejectReason::WrongType(key), s)),
+                })
+            }
+            "length_m" => f.length_m = Some(num()?),
+            "beam_m" => f.beam_m = Some(num()?),
             "scan" => {
                 if is_marker {
                     return Err(reject(RejectReason::NonFinite(key), s));
@@ -268,7 +287,18 @@ fn check(f: Fields<'_>, sensors: &SensorTable) -> Result<Record, Reject> {
             let sog_kn = f.sog_kn.map(|v| in_range(v, v >= 0.0, "sog_kn", s)).transpose()?;
             let cog_deg = opt_bearing(f.cog_deg, "cog_deg", s)?;
             let heading_deg = opt_bearing(f.heading_deg, "heading_deg", s)?;
-            Ok(Record::Report(Report { sensor, time, id: id.into(), lat_deg, lon_deg, sog_kn, cog_deg, heading_deg }))
+            let name = match f.name.as_deref() {
+                Some("") => return Err(reject(RejectReason::OutOfRange("name"), s)),
+                n => n.map(Arc::from),
+            };
+            let ship_type = match f.ship_type {
+                Some(t) => Some(u8::try_from(t).map_err(|_| reject(RejectReason::OutOfRange("ship_type"), s))?),
+                None => None,
+            };
+            let length_m = f.length_m.map(|v| in_range(v, v > 0.0, "length_m", s)).transpose()?;
+            let beam_m = f.beam_m.map(|v| in_range(v, v > 0.0, "beam_m", s)).transpose()?;
+            let vessel = VesselInfo { name, ship_type, length_m, beam_m }.shared();
+            Ok(Record::Report(Report { sensor, time, id: id.into(), lat_deg, lon_deg, sog_kn, cog_deg, heading_deg, vessel }))
         }
     }
 }
@@ -365,6 +395,20 @@ pub fn encode_record(rec: &Record, sensors: &SensorTable, received: Option<Times
                     field(out, k, v);
                 }
             }
+            if let Some(v) = &r.vessel {
+                if let Some(n) = &v.name {
+                    out.push_str(",\"name\":");
+                    json_str(out, n);
+                }
+                if let Some(t) = v.ship_type {
+                    let _ = write!(out, ",\"ship_type\":{t}");
+                }
+                for (k, x) in [("length_m", v.length_m), ("beam_m", v.beam_m)] {
+                    if let Some(x) = x {
+                        field(out, k, x);
+                    }
+                }
+            }
         }
     }
     if let Some(t) = received {
@@ -411,6 +455,40 @@ mod tests {
             }
             _ => panic!(),
         }
+    }
+
+    #[test]
+    fn report_static_fields() {
+        let t = table();
+        let base = r#"{"type":"report","sensor":"ais","time":"2026-05-14T06:00:04Z","id":"235000001","lat_deg":56.45,"lon_deg":7.35"#;
+        let line = format!(r#"{base},"name":"SKERRY \"ONE\"","ship_type":52,"length_m":31.0,"beam_m":9.5}}"#);
+        let r = decode_line(line.as_bytes(), &t).unwrap();
+        let Record::Report(rep) = &r else { panic!() };
+        let v = rep.vessel.as_deref().unwrap();
+        assert_eq!((v.name.as_deref(), v.ship_type, v.length_m, v.beam_m), (Some("SKERRY \"ONE\""), Some(52), Some(31.0), Some(9.5)));
+        let mut s = String::new();
+        encode_record(&r, &t, None, &mut s);
+        assert_eq!(s, line);
+        // Absent fields: no vessel data at all; some present: only those.
+        let Record::Report(plain) = decode_line(format!("{base}}}").as_bytes(), &t).unwrap() else { panic!() };
+        assert!(plain.vessel.is_none());
+        let Record::Report(part) = decode_line(format!(r#"{base},"ship_type":0}}"#).as_bytes(), &t).unwrap() else { panic!() };
+        assert_eq!(part.vessel.as_deref(), Some(&VesselInfo { ship_type: Some(0), ..VesselInfo::default() }));
+        for (extra, want) in [
+            (r#""name":"""#, RejectReason::OutOfRange("name")),
+            (r#""name":7"#, RejectReason::WrongType("name")),
+            (r#""ship_type":256"#, RejectReason::OutOfRange("ship_type")),
+            (r#""ship_type":-1"#, RejectReason::OutOfRange("ship_type")),
+            (r#""ship_type":5.5"#, RejectReason::WrongType("ship_type")),
+            (r#""length_m":0"#, RejectReason::OutOfRange("length_m")),
+            (r#""beam_m":-2.0"#, RejectReason::OutOfRange("beam_m")),
+            (r#""beam_m":"wide""#, RejectReason::WrongType("beam_m")),
+            (r#""length_m":NaN"#, RejectReason::NonFinite("length_m")),
+        ] {
+            assert_eq!(reason(&format!("{base},{extra}}}")), want, "{extra}");
+        }
+        // On a detection these keys mean nothing and are ignored.
+        assert!(decode_line(DET.replace("\"scan\":7", "\"scan\":7,\"name\":3").as_bytes(), &t).is_ok());
     }
 
     #[test]

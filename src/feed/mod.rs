@@ -112,6 +112,37 @@ pub struct Report {
     pub sog_kn: Option<f64>,
     pub cog_deg: Option<f64>,
     pub heading_deg: Option<f64>,
+    /// What the vessel says about itself, if known when the report was
+    /// made (the optional `name`, `ship_type`, `length_m`, `beam_m` of a
+    /// `report` line; the AIS decoder fills it from the MMSI's static
+    /// messages). Shared, so a decoder hands it to every report of the
+    /// vessel without allocating.
+    pub vessel: Option<Arc<VesselInfo>>,
+}
+
+/// A vessel's static data (AIS types 5, 19 and 24: ITU-R M.1371-5), as
+/// carried on `report` records and copied onto the track records of the
+/// track that holds the identity.
+#[derive(Clone, Debug, Default, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct VesselInfo {
+    /// The vessel's name, trailing spaces and '@' padding removed.
+    pub name: Option<Arc<str>>,
+    /// Type of ship and cargo, 0..=255 (ITU-R M.1371-5 Table 53; the AIS
+    /// decoder leaves out 0, "not available").
+    pub ship_type: Option<u8>,
+    /// Overall length and beam, metres (AIS: A + B and C + D).
+    pub length_m: Option<f64>,
+    pub beam_m: Option<f64>,
+}
+
+impl VesselInfo {
+    pub fn is_empty(&self) -> bool {
+        self.name.is_none() && self.ship_type.is_none() && self.length_m.is_none() && self.beam_m.is_none()
+    }
+    /// `None` when nothing is known, so records stay as before.
+    pub fn shared(self) -> Option<Arc<VesselInfo>> {
+        (!self.is_empty()).then(|| Arc::new(self))
+    }
 }
 
 /// A validated feed record.
@@ -180,6 +211,12 @@ impl Record {
                 o(&mut h, r.sog_kn);
                 o(&mut h, r.cog_deg);
                 o(&mut h, r.heading_deg);
+                if let Some(v) = &r.vessel {
+                    v.name.hash(&mut h);
+                    v.ship_type.hash(&mut h);
+                    o(&mut h, v.length_m);
+                    o(&mut h, v.beam_m);
+                }
             }
         }
         h.finish()
@@ -305,15 +342,15 @@ impl FeedCounts {
         use std::fmt::Write;
         let name = |s: &Option<SensorId>| s.map(|i| sensors.name(i).to_string()).unwrap_or_else(|| "(unknown sensor)".into());
         let mut out = String::new();
-        let _ = writeln!(out, "{:<24} {:<20} {:>10}", "sensor", "outcome", "records");
+        let _ = writeln!(out, "{:<24} {:<34} {:>10}", "sensor", "outcome", "records");
         for (s, n) in &self.accepted {
-            let _ = writeln!(out, "{:<24} {:<20} {:>10}", name(s), "accepted", n);
+            let _ = writeln!(out, "{:<24} {:<34} {:>10}", name(s), "accepted", n);
         }
         for ((s, k), n) in &self.rejected {
-            let _ = writeln!(out, "{:<24} {:<20} {:>10}", name(s), format!("rejected:{k}"), n);
+            let _ = writeln!(out, "{:<24} {:<34} {:>10}", name(s), format!("rejected:{k}"), n);
         }
-        let _ = writeln!(out, "{:<24} {:<20} {:>10}", "total", "accepted", self.total_accepted());
-        let _ = writeln!(out, "{:<24} {:<20} {:>10}", "total", "rejected", self.total_rejected());
+        let _ = writeln!(out, "{:<24} {:<34} {:>10}", "total", "accepted", self.total_accepted());
+        let _ = writeln!(out, "{:<24} {:<34} {:>10}", "total", "rejected", self.total_rejected());
         out
     }
 }

@@ -51,6 +51,17 @@ pub struct TrackRecord {
     pub pos_cov_m2: [[f64; 2]; 2],
     pub sensors: Vec<Arc<str>>,
     pub identity: Option<Arc<str>>,
+    /// The static data of that identity (the `vessel` of its reports),
+    /// when known: name, type of ship and cargo, length and beam (m).
+    /// Optional fields (contract version 1.1), written only when known.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub name: Option<Arc<str>>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub ship_type: Option<u8>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub length_m: Option<f64>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub beam_m: Option<f64>,
     /// A transponder report with this track's identity was inconsistent
     /// with the track (outside `tracking.identity_gate_m`). Optional: the
     /// field is written only when true, so records without a conflict are
@@ -177,6 +188,23 @@ impl TrackRecord {
             Some(id) => push_json_str(out, id),
             None => out.push_str("null"),
         }
+        if let Some(n) = &self.name {
+            out.push_str(",\"name\":");
+            push_json_str(out, n);
+        }
+        if let Some(t) = self.ship_type {
+            out.push_str(",\"ship_type\":");
+            push_u64(out, t as u64, 1);
+        }
+        // Decimetres: AIS gives whole metres, other sources may not.
+        if let Some(v) = self.length_m {
+            out.push_str(",\"length_m\":");
+            fixed(out, v, 1);
+        }
+        if let Some(v) = self.beam_m {
+            out.push_str(",\"beam_m\":");
+            fixed(out, v, 1);
+        }
         if self.identity_conflict {
             out.push_str(",\"identity_conflict\":true");
         }
@@ -276,6 +304,10 @@ mod tests {
             pos_cov_m2: [[100.0, 2.5], [2.5, 80.0]],
             sensors: vec!["north-mast".into()],
             identity: None,
+            name: None,
+            ship_type: None,
+            length_m: None,
+            beam_m: None,
             identity_conflict: false,
         };
         let s = r.to_json();
@@ -303,6 +335,15 @@ mod tests {
         let f = flagged.to_json();
         assert_eq!(f, format!("{},\"identity_conflict\":true}}", &s[..s.len() - 1]));
         assert!(TrackRecord::from_json(&f).unwrap().unwrap().identity_conflict);
+        // Static data: written after the identity, omitted when unknown,
+        // and read back (serde_json is the reference reader).
+        let named = TrackRecord { identity: Some("235000101".into()), name: Some("SKERRY \"ONE\"".into()), ship_type: Some(52), length_m: Some(31.0), beam_m: Some(9.25), ..r.clone() };
+        let n = named.to_json();
+        assert!(n.ends_with(r#","identity":"235000101","name":"SKERRY \"ONE\"","ship_type":52,"length_m":31.0,"beam_m":9.3}"#), "{n}");
+        let back = TrackRecord::from_json(&n).unwrap().unwrap();
+        assert_eq!((back.name, back.ship_type, back.length_m, back.beam_m), (named.name.clone(), Some(52), Some(31.0), Some(9.3)));
+        let only_type = TrackRecord { ship_type: Some(0), ..r.clone() }.to_json();
+        assert_eq!(only_type, format!("{},\"ship_type\":0}}", &s[..s.len() - 1]));
     }
 
     #[test]

@@ -315,6 +315,7 @@ pub fn generate_with(sc: &Scenario, seed: u64, progress: &mut dyn FnMut(u64, u64
                         sog_kn: Some(sog),
                         cog_deg: cog,
                         heading_deg: heading,
+                        vessel: None,
                     };
                     out.push((Record::Report(rec), 2, Origin::Report { vessel: vi, east_m: st.pos.x, north_m: st.pos.y }));
                     summary.reports += 1;

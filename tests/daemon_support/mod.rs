@@ -139,6 +139,10 @@ impl Tracker for Echo {
                 pos_cov_m2: [[1.0, 0.0], [0.0, 1.0]],
                 sensors: vec![Arc::from("kestrel-point")],
                 identity: None,
+                name: None,
+                ship_type: None,
+                length_m: None,
+                beam_m: None,
                 identity_conflict: false,
             };
             self.last.push(r.clone());

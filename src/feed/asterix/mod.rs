@@ -153,6 +153,31 @@ impl AsterixRejectReason {
         }
     }
 
+    /// The key under which the offline counts and the daemon's metrics
+    /// count this reason: [`key`](Self::key) with the prefix `asterix_`, so
+    /// that trade-input reasons never mix with the JSON feed's.
+    pub const fn feed_key(self) -> &'static str {
+        match self {
+            Self::TruncatedBlock => "asterix_truncated_block",
+            Self::BadBlockLength => "asterix_bad_block_length",
+            Self::UnknownCategory => "asterix_unknown_category",
+            Self::FspecUnterminated => "asterix_fspec_unterminated",
+            Self::UndefinedItem => "asterix_undefined_item",
+            Self::TruncatedItem => "asterix_truncated_item",
+            Self::BadItemLength => "asterix_bad_item_length",
+            Self::MissingSource => "asterix_missing_source",
+            Self::UnknownSource => "asterix_unknown_source",
+            Self::MissingMessageType => "asterix_missing_message_type",
+            Self::TestTarget => "asterix_test_target",
+            Self::NoDetection => "asterix_no_detection",
+            Self::NoPosition => "asterix_no_position",
+            Self::NoTime => "asterix_no_time",
+            Self::BadTime => "asterix_bad_time",
+            Self::ZeroRange => "asterix_zero_range",
+            Self::MissingSector => "asterix_missing_sector",
+        }
+    }
+
     /// Whether this reason means the input was damaged (rather than a
     /// well-formed record skerry does not use).
     pub fn is_malformed(self) -> bool {
@@ -666,6 +691,9 @@ mod tests {
         assert_eq!(keys.len(), AsterixRejectReason::ALL.len());
         for (i, r) in AsterixRejectReason::ALL.iter().enumerate() {
             assert_eq!(r.index(), i);
+        }
+        for r in AsterixRejectReason::ALL {
+            assert_eq!(r.feed_key(), format!("asterix_{}", r.key()));
         }
     }
 }

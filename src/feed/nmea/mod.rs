@@ -26,6 +26,14 @@
 //!   antenna (not A = C = 0) and the heading is known, or else the course
 //!   over ground at 1 kn or more (the COG of a ship at rest is noise:
 //!   common practice). The shift applied is returned with the report.
+//! - Static data reaches the tracks on the position reports: once a
+//!   vessel's static messages are in, every later `report` of that MMSI
+//!   carries them as [`Report::vessel`] (name, ship type, length A + B,
+//!   beam C + D; a shared [`VesselInfo`] rebuilt only when a static
+//!   message changes it). The engine copies it onto the track that holds
+//!   the identity. No new feed record kind is needed, and a JSON feed can
+//!   carry the same data in the optional `name`, `ship_type`, `length_m`
+//!   and `beam_m` of its `report` lines.
 //! - `VDO` sentences (the receiver's own ship) give
 //!   [`AisOutcome::OwnShip`], never a report of another vessel.
 //! - Identity is the MMSI as 9 digits. The `Arc<str>` is made once per
@@ -53,7 +61,7 @@ mod sentence;
 
 pub use bits::AisText;
 
-use crate::feed::{Record, Report, SensorId};
+use crate::feed::{Record, Report, SensorId, VesselInfo};
 use crate::geo::{WGS84_A, WGS84_E2};
 use crate::time::Timestamp;
 use bits::Bits;
@@ -138,6 +146,29 @@ impl AisRejectReason {
         }
     }
 
+    /// The key under which the offline counts and the daemon's metrics
+    /// count this reason: [`key`](Self::key) with the prefix `nmea_`, so
+    /// that trade-input reasons never mix with the JSON feed's.
+    pub const fn feed_key(self) -> &'static str {
+        match self {
+            Self::NotSentence => "nmea_not_a_sentence",
+            Self::MissingChecksum => "nmea_missing_checksum",
+            Self::BadChecksum => "nmea_bad_checksum",
+            Self::BadTagBlock => "nmea_bad_tag_block",
+            Self::NotAis => "nmea_not_ais",
+            Self::BadField => "nmea_bad_field",
+            Self::BadPayload => "nmea_bad_payload",
+            Self::TooLong => "nmea_too_long",
+            Self::WrongLength => "nmea_wrong_length",
+            Self::NoTime => "nmea_no_time",
+            Self::BadMmsi => "nmea_bad_mmsi",
+            Self::BadPosition => "nmea_bad_position",
+            Self::BadPartNumber => "nmea_bad_part_number",
+            Self::FragmentTimeout => "nmea_fragment_timeout",
+            Self::FragmentAbandoned => "nmea_fragment_abandoned",
+        }
+    }
+
     fn index(self) -> usize {
         self as usize
     }
@@ -211,7 +242,23 @@ pub struct Vessel {
     /// The MMSI as 9 digits, shared by every report of this vessel.
     pub id: Arc<str>,
     pub statics: StaticData,
+    /// What reports of this vessel carry: made from `statics` after each
+    /// static message, `None` while nothing is known.
+    pub info: Option<Arc<VesselInfo>>,
     pub last_seen: Timestamp,
+}
+
+impl StaticData {
+    /// The part of the static data that track records show.
+    pub fn vessel_info(&self) -> VesselInfo {
+        let dims = self.dimensions;
+        VesselInfo {
+            name: self.name.map(|n| Arc::from(n.as_str())),
+            ship_type: self.ship_type,
+            length_m: dims.map(|d| d.length_m()).filter(|&l| l > 0).map(f64::from),
+            beam_m: dims.map(|d| d.beam_m()).filter(|&b| b > 0).map(f64::from),
+        }
+    }
 }
 
 /// The shift applied to a reported position: from the GNSS antenna to
@@ -465,6 +512,7 @@ impl AisDecoder {
                 st.name = nonempty(b.text::<20>(143));
                 st.ship_type = nonzero(b.u(263, 8)).map(|t| t as u8);
                 st.dimensions = Dimensions::new(b.u(271, 9), b.u(280, 9), b.u(289, 6), b.u(295, 6));
+                self.statics_changed(mmsi);
                 self.position(b, mmsi, msg_type, own, time, PositionLayout::CLASS_B)
             }
             5 => {
@@ -476,6 +524,7 @@ impl AisDecoder {
                 st.dimensions = Dimensions::new(b.u(240, 9), b.u(249, 9), b.u(258, 6), b.u(264, 6));
                 st.draught_m = nonzero(b.u(294, 8)).map(|d| d as f64 / 10.0);
                 st.destination = nonempty(b.text::<20>(302));
+                self.statics_changed(mmsi);
                 Ok(AisOutcome::Static { mmsi, msg_type, own_ship: own })
             }
             _ => {
@@ -494,6 +543,7 @@ impl AisDecoder {
                 } else {
                     st.name = nonempty(b.text::<20>(40));
                 }
+                self.statics_changed(mmsi);
                 Ok(AisOutcome::Static { mmsi, msg_type, own_ship: own })
             }
         }
@@ -506,6 +556,7 @@ impl AisDecoder {
         let v = self.vessels.entry(mmsi).or_insert_with(|| Vessel {
             id: Arc::from(format!("{mmsi:09}")),
             statics: StaticData::default(),
+            info: None,
             last_seen: time,
         });
         if time > v.last_seen {
@@ -516,6 +567,16 @@ impl AisDecoder {
 
     fn vessel_mut(&mut self, mmsi: u32, time: Timestamp) -> &mut StaticData {
         &mut self.vessel_entry(mmsi, time).statics
+    }
+
+    /// Rebuilds what the vessel's reports carry after a static message.
+    fn statics_changed(&mut self, mmsi: u32) {
+        if let Some(v) = self.vessels.get_mut(&mmsi) {
+            let info = v.statics.vessel_info();
+            if v.info.as_deref() != Some(&info) {
+                v.info = info.shared();
+            }
+        }
     }
 
     /// Keeps the more recently seen half of the table (amortised O(1)
@@ -577,7 +638,7 @@ impl AisDecoder {
             Some(s) => offset_position(lat, lon, s.east_m, s.north_m),
             None => (lat, lon),
         };
-        let report = Report { sensor, time, id: v.id.clone(), lat_deg, lon_deg, sog_kn, cog_deg, heading_deg };
+        let report = Report { sensor, time, id: v.id.clone(), lat_deg, lon_deg, sog_kn, cog_deg, heading_deg, vessel: v.info.clone() };
         let p = AisPosition {
             report,
             mmsi,
@@ -651,6 +712,9 @@ mod tests {
         assert_eq!(keys.len(), AisRejectReason::ALL.len());
         for (i, r) in AisRejectReason::ALL.iter().enumerate() {
             assert_eq!(r.index(), i);
+        }
+        for r in AisRejectReason::ALL {
+            assert_eq!(r.feed_key(), format!("nmea_{}", r.key()));
         }
     }
 

@@ -76,8 +76,9 @@ fn tag_block(tag: &[u8]) -> Result<Option<Timestamp>, R> {
             let n = v.iter().fold(0i64, |a, &d| a * 10 + (d - b'0') as i64);
             // IEC 61162-1 gives c: in seconds; some receivers write
             // milliseconds (13 digits; common practice).
-            let ns = if n >= 100_000_000_000 { n * 1_000_000 } else { n * 1_000_000_000 };
-            time = Some(Timestamp::from_unix_nanos(ns));
+            let ns = if n >= 100_000_000_000 { n.checked_mul(1_000_000) } else { n.checked_mul(1_000_000_000) };
+            // Beyond the nanosecond clock's range (after 2262): not a time.
+            time = Some(Timestamp::from_unix_nanos(ns.ok_or(R::BadTagBlock)?));
         }
     }
     Ok(time)
@@ -175,5 +176,22 @@ mod tests {
         let s = parse(b"\\s:skerry1,c:1778738400*8\\!AIVDM,1,1,,B,13P7A9OP0l0QaDPPC@d3Jjh1P000,0*72").unwrap();
         assert_eq!(s.tag_time, Some(Timestamp::from_unix_nanos(1_778_738_400_000_000_000)));
         assert_eq!(parse(b"\\s:skerry1,c:1778738400*9\\!AIVDM,1,1,,B,13P7A9OP0l0QaDPPC@d3Jjh1P000,0*72"), Err(R::BadTagBlock));
+    }
+
+    #[test]
+    fn tag_block_times_past_the_clock_range_are_refused() {
+        // Found by the nmea fuzz target: a c: of 12 or 13 digits overflowed
+        // i64 nanoseconds. The largest i64 is 9 223 372 036 854 775 807 ns,
+        // 2262-04-11; seconds or milliseconds past it are no time.
+        let line = |c: &str| {
+            let body = format!("c:{c}");
+            let cs = body.bytes().fold(0u8, |a, b| a ^ b);
+            format!("\\{body}*{cs:02X}\\!AIVDM,1,1,,B,13P7A9OP0l0QaDPPC@d3Jjh1P000,0*72")
+        };
+        assert_eq!(parse(line("9999999999999").as_bytes()), Err(R::BadTagBlock));
+        assert_eq!(parse(line("99999999999").as_bytes()), Err(R::BadTagBlock));
+        assert_eq!(parse(line("9223372036854").as_bytes()).unwrap().tag_time, Some(Timestamp::from_unix_nanos(9_223_372_036_854_000_000)));
+        assert_eq!(parse(line("9223372036").as_bytes()).unwrap().tag_time, Some(Timestamp::from_unix_nanos(9_223_372_036_000_000_000)));
+        assert_eq!(parse(line("9223372037").as_bytes()), Err(R::BadTagBlock));
     }
 }

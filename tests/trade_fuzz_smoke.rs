@@ -1,0 +1,294 @@
+//! A short property-based stand-in for the cargo-fuzz targets (fuzz/),
+//! for CI: random and mutated trade inputs, through the same paths the
+//! fuzz targets drive, never panic, and the books always balance.
+//!
+//! - Live: [`IngestContext::asterix_datagram`] and
+//!   [`IngestContext::nmea_datagram`]: each input counted once, as
+//!   accepted, rejected or dropped (`received = accepted + rejected +
+//!   dropped`), and the per-sensor metrics agree with the tally.
+//! - Offline: [`read_inputs`] on an ASTERIX recording and an NMEA log:
+//!   every decoder outcome is one input (`lines`), every record is
+//!   accepted or screened out, and every record accepted survives the
+//!   contract's own check: written as a feed line and read back, it is the
+//!   same record (CONTRACT.md §1 ranges and types; numbers to within an
+//!   ulp, see `same_record`).
+
+use proptest::prelude::*;
+use skerry::config::Config;
+use skerry::daemon::clock::DaemonClock;
+use skerry::daemon::ingest::{IngestContext, LogLimiter};
+use skerry::daemon::metrics::Metrics;
+use skerry::feed::asterix::{AsterixDecoder, SourceTable};
+use skerry::feed::nmea::AisDecoder;
+use skerry::feed::{Record, decode_line, encode_record};
+use skerry::offline::{NmeaInput, TradeInputs, read_inputs};
+use skerry::time::Timestamp;
+use std::sync::Arc;
+use std::sync::Mutex;
+use std::sync::atomic::Ordering::Relaxed;
+
+const ASTERIX: &str = include_str!("fixtures/asterix_cases.json");
+const AIS: &str = include_str!("fixtures/ais_session.json");
+
+const CONFIG: &str = r#"
+[site]
+lat_deg = 56.45
+lon_deg = 7.35
+
+[[sensors]]
+id = "north-mast"
+kind = "radar"
+lat_deg = 56.462
+lon_deg = 7.343
+range_sigma_m = 12.0
+bearing_sigma_deg = 0.3
+max_range_m = 30000.0
+scan_period_s = 2.5
+asterix_sac = 25
+asterix_sic = 201
+
+[[sensors]]
+id = "south-quay"
+kind = "radar"
+lat_deg = 56.431
+lon_deg = 7.392
+range_sigma_m = 15.0
+bearing_sigma_deg = 0.3
+max_range_m = 30000.0
+scan_period_s = 3.0
+asterix_sac = 25
+asterix_sic = 202
+
+[[sensors]]
+id = "harbour-ais"
+kind = "transponder"
+position_sigma_m = 10.0
+
+[tracking]
+association = "gnn"
+"#;
+
+fn config() -> Config {
+    Config::from_toml_str(CONFIG, "smoke.toml", &Default::default()).unwrap()
+}
+
+fn asterix_seeds() -> Vec<Vec<u8>> {
+    let doc: serde_json::Value = serde_json::from_str(ASTERIX).unwrap();
+    doc["cases"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| {
+            let h = c["hex"].as_str().unwrap();
+            (0..h.len()).step_by(2).map(|i| u8::from_str_radix(&h[i..i + 2], 16).unwrap()).collect()
+        })
+        .collect()
+}
+
+fn ais_lines() -> Vec<Vec<u8>> {
+    let doc: serde_json::Value = serde_json::from_str(AIS).unwrap();
+    doc["lines"].as_array().unwrap().iter().map(|l| l["line"].as_str().unwrap().as_bytes().to_vec()).collect()
+}
+
+/// A seed with some bytes replaced, flipped, dropped and inserted.
+fn mutate(seed: &[u8], edits: &[(usize, u8, u8)]) -> Vec<u8> {
+    let mut v = seed.to_vec();
+    for &(pos, op, b) in edits {
+        if v.is_empty() {
+            v.push(b);
+            continue;
+        }
+        let i = pos % v.len();
+        match op % 4 {
+            0 => v[i] = b,
+            1 => v[i] ^= 1 << (b % 8),
+            2 => {
+                v.remove(i);
+            }
+            _ => v.insert(i, b),
+        }
+    }
+    v
+}
+
+fn now() -> Timestamp {
+    Timestamp::parse_rfc3339("2026-05-14T06:00:10Z").unwrap()
+}
+
+struct Live {
+    ctx: IngestContext,
+    // Kept so that the queue stays open.
+    _rx: tokio::sync::mpsc::Receiver<skerry::daemon::ingest::Arrival>,
+}
+
+fn live(queue: usize) -> Live {
+    let cfg = config();
+    let (tx, rx) = tokio::sync::mpsc::channel(queue);
+    let ctx = IngestContext {
+        sensors: cfg.sensor_table(),
+        allow: vec![Vec::new(); cfg.sensors.len()],
+        max_record_bytes: cfg.feed.max_record_bytes,
+        max_time_offset_s: cfg.feed.max_time_offset_s,
+        metrics: Arc::new(Metrics::new(&cfg, now())),
+        clock: DaemonClock::start(),
+        tx,
+        log: Mutex::new(LogLimiter::new(10.0)),
+        cancel: Default::default(),
+        tracker: Default::default(),
+    };
+    Live { ctx, _rx: rx }
+}
+
+/// The books of the live path balance, in the tally and in the metrics.
+fn check_live(l: &Live, tallies: &[skerry::daemon::ingest::Tally]) {
+    let (mut received, mut accepted, mut rejected, mut dropped) = (0, 0, 0, 0);
+    for t in tallies {
+        let r: u64 = t.rejected.values().sum();
+        assert_eq!(t.received, t.accepted + r + t.dropped, "{t:?}");
+        received += t.received;
+        accepted += t.accepted;
+        rejected += r;
+        dropped += t.dropped;
+    }
+    let m = l.ctx.metrics.totals();
+    assert_eq!(m.received, received);
+    assert_eq!(m.accepted, accepted);
+    assert_eq!(m.rejected.iter().sum::<u64>(), rejected);
+    assert_eq!(l.ctx.metrics.dropped_ingest_queue.load(Relaxed), dropped);
+}
+
+fn live_asterix(datagrams: &[Vec<u8>]) {
+    let l = live(64);
+    let mut dec = AsterixDecoder::new(SourceTable::from_config(&config()).unwrap());
+    let tallies: Vec<_> = datagrams.iter().map(|d| l.ctx.asterix_datagram(&mut dec, d, None, now())).collect();
+    check_live(&l, &tallies);
+}
+
+fn live_nmea(datagrams: &[Vec<u8>]) {
+    let l = live(64);
+    let mut dec = AisDecoder::with_limits(2, 5.0, 8);
+    let tallies: Vec<_> = datagrams.iter().map(|d| l.ctx.nmea_datagram(&mut dec, d, None, now())).collect();
+    check_live(&l, &tallies);
+}
+
+/// The offline path on one ASTERIX recording and one NMEA log.
+fn offline(asterix: &[u8], nmea: &[u8]) {
+    let dir = tempfile::tempdir().unwrap();
+    let (a, n) = (dir.path().join("r.ast"), dir.path().join("l.nmea"));
+    std::fs::write(&a, asterix).unwrap();
+    std::fs::write(&n, nmea).unwrap();
+    let cfg = config();
+    let trade = TradeInputs { nmea: vec![NmeaInput { sensor: "harbour-ais".into(), path: n }], asterix: vec![a], date: Some(Timestamp::parse_date("2026-05-14").unwrap()) };
+    let (feed, summary) = read_inputs(&[], &trade, &cfg).unwrap();
+    let sensors = cfg.sensor_table();
+    let ac = summary.asterix.as_ref().unwrap();
+    let nc = summary.nmea.get(&2).cloned().unwrap_or_default();
+    use skerry::feed::nmea::AisRejectReason as R;
+    let lost = nc.rejected(R::FragmentTimeout) + nc.rejected(R::FragmentAbandoned);
+    let nmea_outcomes = nc.positions + nc.own_ship + nc.no_position + nc.statics + nc.fragments + nc.other + nc.total_rejected() - lost;
+    assert_eq!(feed.lines as u64, ac.plots + ac.services + ac.total_rejected() + nmea_outcomes);
+    let decoder_rejects = ac.total_rejected() + nc.total_rejected();
+    let records = ac.plots + ac.scan_ends + nc.positions;
+    assert_eq!(feed.counts.total_accepted() + feed.counts.total_rejected() - decoder_rejects, records);
+    assert_eq!(feed.records.len() as u64, feed.counts.total_accepted());
+    let mut line = String::new();
+    for r in &feed.records {
+        line.clear();
+        encode_record(r, &sensors, None, &mut line);
+        let back = decode_line(line.as_bytes(), &sensors);
+        assert!(back.as_ref().is_ok_and(|b| same_record(b, r)), "{line}: {back:?} vs {r:?}");
+    }
+}
+
+/// Whether two records are the same, each number to within one unit in
+/// the last place: serde_json's default number parser (no
+/// `float_roundtrip` feature) can land one ulp off the shortest
+/// round-trip text it is given.
+fn same_record(a: &Record, b: &Record) -> bool {
+    fn f(x: f64, y: f64) -> bool {
+        x == y || (x.is_finite() && y.is_finite() && x.signum() == y.signum() && x.to_bits().abs_diff(y.to_bits()) <= 1)
+    }
+    fn o(x: Option<f64>, y: Option<f64>) -> bool {
+        match (x, y) {
+            (Some(x), Some(y)) => f(x, y),
+            (None, None) => true,
+            _ => false,
+        }
+    }
+    match (a, b) {
+        (Record::Detection(x), Record::Detection(y)) => {
+            (x.sensor, x.time, x.scan) == (y.sensor, y.time, y.scan) && f(x.range_m, y.range_m) && f(x.bearing_deg, y.bearing_deg) && o(x.radial_speed_mps, y.radial_speed_mps) && o(x.snr_db, y.snr_db)
+        }
+        (Record::ScanEnd(x), Record::ScanEnd(y)) => {
+            (x.sensor, x.time, x.scan) == (y.sensor, y.time, y.scan)
+                && match (x.sector_deg, y.sector_deg) {
+                    (Some([p, q]), Some([r, s])) => f(p, r) && f(q, s),
+                    (None, None) => true,
+                    _ => false,
+                }
+        }
+        (Record::Report(x), Record::Report(y)) => {
+            let v = |r: &skerry::feed::Report| r.vessel.as_deref().map(|v| (v.name.clone(), v.ship_type, v.length_m, v.beam_m));
+            (x.sensor, x.time, &x.id) == (y.sensor, y.time, &y.id)
+                && f(x.lat_deg, y.lat_deg)
+                && f(x.lon_deg, y.lon_deg)
+                && o(x.sog_kn, y.sog_kn)
+                && o(x.cog_deg, y.cog_deg)
+                && o(x.heading_deg, y.heading_deg)
+                && match (v(x), v(y)) {
+                    (Some((n1, t1, l1, b1)), Some((n2, t2, l2, b2))) => n1 == n2 && t1 == t2 && o(l1, l2) && o(b1, b2),
+                    (None, None) => true,
+                    _ => false,
+                }
+        }
+        _ => false,
+    }
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 160, ..ProptestConfig::default() })]
+
+    #[test]
+    fn trade_fuzz_smoke_live_asterix(which in proptest::collection::vec(any::<usize>(), 1..4), edits in proptest::collection::vec((any::<usize>(), any::<u8>(), any::<u8>()), 0..6), random in proptest::collection::vec(any::<u8>(), 0..200)) {
+        let seeds = asterix_seeds();
+        let mut dgs: Vec<Vec<u8>> = which.iter().map(|w| seeds[w % seeds.len()].clone()).collect();
+        if let Some(first) = dgs.first_mut() {
+            *first = mutate(first, &edits);
+        }
+        dgs.push(random);
+        live_asterix(&dgs);
+    }
+
+    #[test]
+    fn trade_fuzz_smoke_live_nmea(edits in proptest::collection::vec((any::<usize>(), any::<u8>(), any::<u8>()), 0..6), which in any::<usize>(), per in 1usize..6) {
+        // The session in datagrams of `per` lines, one line mutated.
+        let lines = ais_lines();
+        let k = which % lines.len();
+        let mut dgs = Vec::new();
+        for (c, chunk) in lines.chunks(per).enumerate() {
+            let mut d = Vec::new();
+            for (i, l) in chunk.iter().enumerate() {
+                if c * per + i == k { d.extend(mutate(l, &edits)) } else { d.extend_from_slice(l) }
+                d.extend_from_slice(b"\r\n");
+            }
+            dgs.push(d);
+        }
+        live_nmea(&dgs);
+    }
+
+    #[test]
+    fn trade_fuzz_smoke_offline(a in any::<usize>(), edits in proptest::collection::vec((any::<usize>(), any::<u8>(), any::<u8>()), 0..6), k in any::<usize>(), line_edits in proptest::collection::vec((any::<usize>(), any::<u8>(), any::<u8>()), 0..4)) {
+        let seeds = asterix_seeds();
+        let mut rec = seeds[a % seeds.len()].clone();
+        rec.extend(seeds[(a / 7) % seeds.len()].iter());
+        let rec = mutate(&rec, &edits);
+        let lines = ais_lines();
+        let k = k % lines.len();
+        let mut log = Vec::new();
+        for (i, l) in lines.iter().enumerate() {
+            if i == k { log.extend(mutate(l, &line_edits)) } else { log.extend_from_slice(l) }
+            log.push(b'\n');
+        }
+        offline(&rec, &log);
+    }
+}
