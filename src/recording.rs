@@ -249,6 +249,21 @@ impl LineWriter {
                         field(out, k, v);
                     }
                 }
+                if let Some(v) = &r.vessel {
+                    if let Some(n) = &v.name {
+                        out.extend_from_slice(b",\"name\":");
+                        let _ = serde_json::to_writer(&mut *out, &**n);
+                    }
+                    if let Some(t) = v.ship_type {
+                        out.extend_from_slice(b",\"ship_type\":");
+                        out.extend_from_slice(t.to_string().as_bytes());
+                    }
+                    for (k, x) in [(&b"length_m"[..], v.length_m), (b"beam_m", v.beam_m)] {
+                        if let Some(x) = x {
+                            field(out, k, x);
+                        }
+                    }
+                }
             }
         }
         out.extend_from_slice(b",\"received\":\"");
@@ -429,7 +444,7 @@ mod tests {
             let rec = match i % 3 {
                 0 => Record::Detection(Detection { sensor: 0, time, scan: rng.random_bool(0.5).then(|| rng.random()), range_m: num(&mut rng), bearing_deg: num(&mut rng), radial_speed_mps: rng.random_bool(0.5).then(|| num(&mut rng)), snr_db: rng.random_bool(0.5).then(|| num(&mut rng)) }),
                 1 => Record::ScanEnd(ScanEnd { sensor: 0, time, scan: rng.random(), sector_deg: rng.random_bool(0.5).then(|| [num(&mut rng), num(&mut rng)]) }),
-                _ => Record::Report(Report { sensor: 1, time, id: format!("23{}\"ø\\\u{1}", rng.random::<u32>()).into(), lat_deg: num(&mut rng), lon_deg: num(&mut rng), sog_kn: rng.random_bool(0.5).then(|| num(&mut rng)), cog_deg: rng.random_bool(0.5).then(|| num(&mut rng)), heading_deg: None }),
+                _ => Record::Report(Report { sensor: 1, time, id: format!("23{}\"ø\\\u{1}", rng.random::<u32>()).into(), lat_deg: num(&mut rng), lon_deg: num(&mut rng), sog_kn: rng.random_bool(0.5).then(|| num(&mut rng)), cog_deg: rng.random_bool(0.5).then(|| num(&mut rng)), heading_deg: None, vessel: rng.random_bool(0.5).then(|| crate::feed::VesselInfo { name: rng.random_bool(0.7).then(|| format!("SELKIE \"{}\" ø", rng.random::<u16>()).into()), ship_type: rng.random_bool(0.7).then(|| rng.random()), length_m: rng.random_bool(0.7).then(|| num(&mut rng)), beam_m: rng.random_bool(0.7).then(|| num(&mut rng)) }.into()) }),
             };
             let mut want = String::new();
             format_line(&rec, &sensors, received, &mut want);

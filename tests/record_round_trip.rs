@@ -62,7 +62,8 @@ async fn recording_of_a_demo_feed_tracks_like_the_live_run() {
     // The files: named by hour, every line a feed line with `received`
     // inside the run and inside its file's hour, in arrival order (one
     // UDP input: received never goes back).
-    let mut names: Vec<String> = std::fs::read_dir(dir.path()).unwrap().map(|e| e.unwrap().file_name().into_string().unwrap()).collect();
+    // The engine snapshots share the folder: only the `.jsonl` files are the recording.
+    let mut names: Vec<String> = std::fs::read_dir(dir.path()).unwrap().map(|e| e.unwrap().file_name().into_string().unwrap()).filter(|n| n.ends_with(".jsonl")).collect();
     names.sort();
     assert!(!names.is_empty() && names.len() <= 2, "{names:?}");
     let mut recorded: Vec<Record> = Vec::new();

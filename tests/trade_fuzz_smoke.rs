@@ -135,6 +135,7 @@ fn live(queue: usize) -> Live {
         log: Mutex::new(LogLimiter::new(10.0)),
         cancel: Default::default(),
         tracker: Default::default(),
+        recorder: None,
     };
     Live { ctx, _rx: rx }
 }

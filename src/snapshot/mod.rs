@@ -451,7 +451,7 @@ mod tests {
                 let time = Timestamp::from_unix_nanos(rng.random_range(0..4i64) * 1_000_000);
                 match rng.random_range(0..3) {
                     0 => Record::Detection(Detection { sensor, time, scan: None, range_m: rng.random_range(1..5) as f64, bearing_deg: 1.0, radial_speed_mps: None, snr_db: None }),
-                    1 => Record::Report(Report { sensor, time, id: "200100001".into(), lat_deg: rng.random_range(0..3) as f64, lon_deg: 7.0, sog_kn: None, cog_deg: None, heading_deg: None }),
+                    1 => Record::Report(Report { sensor, time, id: "200100001".into(), lat_deg: rng.random_range(0..3) as f64, lon_deg: 7.0, sog_kn: None, cog_deg: None, heading_deg: None, vessel: None }),
                     _ => Record::ScanEnd(ScanEnd { sensor, time, scan: rng.random_range(0..3), sector_deg: None }),
                 }
             })
