@@ -52,17 +52,27 @@ fn engine_throughput(c: &mut Criterion) {
             let f = read_feeds(&[feed.clone()], &cfg).expect("feed");
             let mut engine = Engine::new(&cfg).expect("engine");
             let mut out = Vec::new();
-            let mut line = String::new();
+            // As `skerry track` writes: lines as bytes into one buffer,
+            // emptied every 64 KiB.
+            let mut line: Vec<u8> = Vec::with_capacity(1 << 17);
             let mut bytes = 0usize;
             for r in &f.records {
                 engine.handle(r, &mut out);
                 for t in out.drain(..) {
+                    t.write_json_bytes(&mut line);
+                    line.push(b'\n');
+                }
+                if line.len() >= 1 << 16 {
+                    bytes += line.len();
                     line.clear();
-                    t.write_json(&mut line);
-                    bytes += line.len() + 1;
                 }
             }
-            black_box(bytes)
+            engine.finish(&mut out);
+            for t in out.drain(..) {
+                t.write_json_bytes(&mut line);
+                line.push(b'\n');
+            }
+            black_box(bytes + line.len())
         })
     });
     g.finish();

@@ -67,6 +67,24 @@ impl Motion {
         }
     }
 
+    /// The same prediction as [`Motion::predict`], to the bit for finite
+    /// input (zeros may differ in sign), with fewer operations: the
+    /// products with the transition matrix's structural zeros (each ±0,
+    /// which leaves a sum unchanged) are skipped, and for the CV model the
+    /// known ones too. The engine's hot path uses this one; the reference
+    /// above stays the one the filterpy and Kalata checks pin, and the
+    /// tests below hold the two together.
+    pub fn predict_fast(&self, g: &Gaussian, dt: f64) -> Gaussian {
+        let dt = sanitize_dt(dt);
+        let (x, f) = self.transition(&g.x, dt);
+        let q = self.process_noise(dt);
+        let fp = match *self {
+            Motion::ConstantVelocity { .. } => cv_sandwich(&g.p, dt),
+            Motion::CoordinatedTurn { .. } => turn_sandwich(&g.p, &f),
+        };
+        Gaussian { x, p: symmetric_sum(&fp, &q) }
+    }
+
     /// The predicted mean `f(x)` after `dt` seconds and the Jacobian of the
     /// transition at `x` (for the CV model, the transition matrix itself).
     pub fn transition(&self, x: &StateVec, dt: f64) -> (StateVec, StateCov) {
@@ -169,6 +187,69 @@ pub fn predict_linear(g: &Gaussian, f: &StateCov, q: &StateCov) -> Gaussian {
         x: f * g.x,
         p: symmetric(f * g.p * f.transpose() + q),
     }
+}
+
+/// `F P Fᵀ` for the CV transition over `dt`, term by term in the order
+/// nalgebra's product sums them (ascending inner index), leaving out the
+/// terms with a structural zero of F. Row and column 4 are zero.
+fn cv_sandwich(p: &StateCov, dt: f64) -> StateCov {
+    // m = F P for rows and columns 0..4: F's row 4 is zero, and column 4
+    // of m meets only zeros of Fᵀ.
+    let mut m = [[0.0; 4]; 4];
+    for j in 0..4 {
+        m[0][j] = p[(0, j)] + p[(2, j)] * dt;
+        m[1][j] = p[(1, j)] + p[(3, j)] * dt;
+        m[2][j] = p[(2, j)];
+        m[3][j] = p[(3, j)];
+    }
+    let mut out = StateCov::zeros();
+    for (i, row) in m.iter().enumerate() {
+        out[(i, 0)] = row[0] + row[2] * dt;
+        out[(i, 1)] = row[1] + row[3] * dt;
+        out[(i, 2)] = row[2];
+        out[(i, 3)] = row[3];
+    }
+    out
+}
+
+/// `F P Fᵀ` for a Jacobian with the coordinated turn's zero pattern
+/// (first two columns the identity's, last row `[0, 0, 0, 0, f44]`), in
+/// nalgebra's summation order without the structural zeros.
+fn turn_sandwich(p: &StateCov, f: &StateCov) -> StateCov {
+    let mut m = StateCov::zeros();
+    for j in 0..5 {
+        m[(0, j)] = p[(0, j)] + p[(2, j)] * f[(0, 2)] + p[(3, j)] * f[(0, 3)] + p[(4, j)] * f[(0, 4)];
+        m[(1, j)] = p[(1, j)] + p[(2, j)] * f[(1, 2)] + p[(3, j)] * f[(1, 3)] + p[(4, j)] * f[(1, 4)];
+        for i in 2..4 {
+            m[(i, j)] = p[(2, j)] * f[(i, 2)] + p[(3, j)] * f[(i, 3)] + p[(4, j)] * f[(i, 4)];
+        }
+        m[(4, j)] = p[(4, j)] * f[(4, 4)];
+    }
+    let mut out = StateCov::zeros();
+    for i in 0..5 {
+        out[(i, 0)] = m[(i, 0)] + m[(i, 2)] * f[(0, 2)] + m[(i, 3)] * f[(0, 3)] + m[(i, 4)] * f[(0, 4)];
+        out[(i, 1)] = m[(i, 1)] + m[(i, 2)] * f[(1, 2)] + m[(i, 3)] * f[(1, 3)] + m[(i, 4)] * f[(1, 4)];
+        for j in 2..4 {
+            out[(i, j)] = m[(i, 2)] * f[(j, 2)] + m[(i, 3)] * f[(j, 3)] + m[(i, 4)] * f[(j, 4)];
+        }
+        out[(i, 4)] = m[(i, 4)] * f[(4, 4)];
+    }
+    out
+}
+
+/// `symmetric(a + q)` as [`Motion::predict`] forms it.
+fn symmetric_sum(a: &StateCov, q: &StateCov) -> StateCov {
+    let mut out = StateCov::zeros();
+    for i in 0..5 {
+        // (y + y)·0.5 is y exactly.
+        out[(i, i)] = a[(i, i)] + q[(i, i)];
+        for j in i + 1..5 {
+            let v = ((a[(i, j)] + q[(i, j)]) + (a[(j, i)] + q[(j, i)])) * 0.5;
+            out[(i, j)] = v;
+            out[(j, i)] = v;
+        }
+    }
+    out
 }
 
 fn sanitize_dt(dt: f64) -> f64 {
@@ -390,5 +471,60 @@ mod tests {
         assert_eq!((k.s, k.c, k.ds, k.dc), (dt, 0.0, 0.0, dt * dt / 2.0));
         let k = turn_coeffs(0.0, 0.0);
         assert_eq!((k.s, k.c, k.ds, k.dc), (0.0, 0.0, 0.0, 0.0));
+    }
+}
+
+#[cfg(test)]
+pub(crate) mod fast_path_tests {
+    //! The fast prediction against the reference one, on random states:
+    //! equal as numbers (`==`, so ±0 alike), entry by entry. The
+    //! reference is the path the filterpy and Kalata checks pin.
+    use super::*;
+    use rand::{Rng, SeedableRng};
+    use rand_chacha::ChaCha8Rng;
+
+    /// A random Gaussian with an exactly symmetric positive definite
+    /// covariance, as the filters keep them.
+    pub(crate) fn random_gaussian(rng: &mut ChaCha8Rng) -> Gaussian {
+        let mut a = StateCov::zeros();
+        for v in a.iter_mut() {
+            *v = rng.random_range(-30.0..30.0);
+        }
+        let p = a * a.transpose() + StateCov::identity() * 1e-3;
+        let mut x = StateVec::zeros();
+        for (i, v) in x.iter_mut().enumerate() {
+            *v = match i {
+                0 | 1 => rng.random_range(-20_000.0..20_000.0),
+                2 | 3 => rng.random_range(-15.0..15.0),
+                // Turn rates on both sides of the series threshold.
+                _ => rng.random_range(-0.12..0.12) * if rng.random::<bool>() { 1.0 } else { 0.01 },
+            };
+        }
+        Gaussian { x, p: symmetric(p) }
+    }
+
+    #[test]
+    fn fast_prediction_is_the_reference_prediction() {
+        let mut rng = ChaCha8Rng::seed_from_u64(0xfa57);
+        let models = [
+            Motion::ConstantVelocity { accel_psd: 0.02 },
+            Motion::CoordinatedTurn { accel_psd: 0.05, turn_psd: 1e-4 },
+            Motion::ConstantVelocity { accel_psd: 0.5 },
+        ];
+        for trial in 0..20_000 {
+            let g = random_gaussian(&mut rng);
+            let dt = match trial % 4 {
+                0 => 0.0,
+                1 => rng.random_range(0.0..0.05),
+                _ => rng.random_range(0.0..40.0),
+            };
+            for m in &models {
+                let want = m.predict(&g, dt);
+                let got = m.predict_fast(&g, dt);
+                for (a, b) in got.x.iter().chain(got.p.iter()).zip(want.x.iter().chain(want.p.iter())) {
+                    assert!(a == b, "trial {trial} {m:?} dt {dt}: {a:e} vs {b:e}");
+                }
+            }
+        }
     }
 }

@@ -245,6 +245,43 @@ impl Imm {
         out
     }
 
+    /// The same step as [`Imm::predict`], to the bit for finite input
+    /// (zeros may differ in sign), for the engine's hot path: the mixing
+    /// sums only one triangle of each covariance ([`moment_match_fast`])
+    /// and each model predicts with [`Motion::predict_fast`]. The reference
+    /// above stays the one the filterpy checks pin; the tests hold the two
+    /// together.
+    pub fn predict_fast(&self, s: &ImmState, dt: f64) -> ImmState {
+        let n = self.n;
+        let pi = self.transition_matrix(dt);
+        let mut out = *s;
+        let mut cbar = [0.0; MAX_MODELS];
+        for j in 0..n {
+            cbar[j] = (0..n).map(|i| pi[i][j] * s.mu[i]).sum();
+        }
+        for j in 0..n {
+            let mut w = [0.0; MAX_MODELS];
+            for i in 0..n {
+                w[i] = if cbar[j] > 0.0 {
+                    pi[i][j] * s.mu[i] / cbar[j]
+                } else {
+                    s.mu[i]
+                };
+            }
+            let mixed = moment_match_fast(&s.comps[..n], &w[..n]);
+            out.comps[j] = self.models[j].predict_fast(&mixed, dt);
+        }
+        out.mu = normalized(cbar, n);
+        out
+    }
+
+    /// [`Imm::combine`] by [`moment_match_fast`]: the same bits when the
+    /// components' covariances are exactly symmetric, as every state the
+    /// IMM returns is.
+    pub fn combine_fast(&self, s: &ImmState) -> Gaussian {
+        moment_match_fast(&s.comps[..self.n], &s.mu[..self.n])
+    }
+
     /// The moment-matched single Gaussian of the mixture.
     pub fn combine(&self, s: &ImmState) -> Gaussian {
         moment_match(&s.comps[..self.n], &s.mu[..self.n])
@@ -307,6 +344,35 @@ fn moment_match(comps: &[Gaussian], w: &[f64]) -> Gaussian {
     }
 }
 
+/// [`moment_match`] summing the upper triangle only and mirroring it. For
+/// exactly symmetric `P_i` the reference's sum is exactly symmetric (each
+/// entry and its mirror are the same products in the same order) and its
+/// final symmetrisation changes nothing, so the two agree to the bit.
+fn moment_match_fast(comps: &[Gaussian], w: &[f64]) -> Gaussian {
+    let mut x = StateVec::zeros();
+    for (c, &wi) in comps.iter().zip(w) {
+        x += c.x * wi;
+    }
+    let mut p = StateCov::zeros();
+    for (c, &wi) in comps.iter().zip(w) {
+        if wi == 0.0 {
+            continue;
+        }
+        let d = c.x - x;
+        for j in 0..5 {
+            for i in 0..=j {
+                p[(i, j)] += (c.p[(i, j)] + d[i] * d[j]) * wi;
+            }
+        }
+    }
+    for j in 0..5 {
+        for i in 0..j {
+            p[(j, i)] = p[(i, j)];
+        }
+    }
+    Gaussian { x, p }
+}
+
 fn normalized(mut mu: [f64; MAX_MODELS], n: usize) -> [f64; MAX_MODELS] {
     let total: f64 = mu[..n].iter().sum();
     if total > 0.0 && total.is_finite() {
@@ -315,4 +381,69 @@ fn normalized(mut mu: [f64; MAX_MODELS], n: usize) -> [f64; MAX_MODELS] {
         mu[..n].iter_mut().for_each(|m| *m = 1.0 / n as f64);
     }
     mu
+}
+
+#[cfg(test)]
+mod fast_path_tests {
+    //! The fast IMM steps against the reference ones: equal as numbers
+    //! (`==`, so ±0 alike), entry by entry, on random states and on
+    //! states the filter itself produced. The reference is the path the
+    //! filterpy checks pin.
+    use super::*;
+    use crate::engine::filter::fast_path_tests::random_gaussian;
+    use rand::{Rng, SeedableRng};
+    use rand_chacha::ChaCha8Rng;
+
+    fn same(a: &ImmState, b: &ImmState, n: usize) -> bool {
+        let g = |s: &ImmState| -> Vec<f64> { s.comps[..n].iter().flat_map(|c| c.x.iter().chain(c.p.iter()).copied().collect::<Vec<_>>()).chain(s.mu.iter().copied()).collect() };
+        g(a).iter().zip(g(b).iter()).all(|(x, y)| x == y)
+    }
+
+    fn same_gaussian(a: &Gaussian, b: &Gaussian) -> bool {
+        a.x.iter().chain(a.p.iter()).zip(b.x.iter().chain(b.p.iter())).all(|(x, y)| x == y)
+    }
+
+    #[test]
+    fn fast_predict_and_combine_are_the_reference_ones() {
+        let mut rng = ChaCha8Rng::seed_from_u64(0x1aa);
+        let imm = Imm::vessel_default();
+        let n = imm.n_models();
+        for trial in 0..5_000 {
+            let mut s = imm.init(random_gaussian(&mut rng), Some(&VESSEL_MU0));
+            for c in s.comps.iter_mut() {
+                *c = random_gaussian(&mut rng);
+            }
+            let mut mu = [rng.random::<f64>(), rng.random::<f64>(), rng.random::<f64>()];
+            if trial % 5 == 0 {
+                mu[trial % 3] = 0.0;
+            }
+            let total: f64 = mu.iter().sum();
+            s.mu = mu.map(|m| m / total);
+            let dt = if trial % 7 == 0 { 0.0 } else { rng.random_range(0.0..30.0) };
+            let (want, got) = (imm.predict(&s, dt), imm.predict_fast(&s, dt));
+            assert!(same(&want, &got, n), "trial {trial}");
+            assert!(same_gaussian(&imm.combine(&want), &imm.combine_fast(&want)), "trial {trial}");
+        }
+    }
+
+    #[test]
+    fn fast_path_follows_the_reference_over_a_run() {
+        // Predict and update in turn along a turning track, starting both
+        // paths from the same state: they stay equal step after step.
+        let imm = Imm::vessel_default();
+        let n = imm.n_models();
+        let mut rng = ChaCha8Rng::seed_from_u64(0x2bb);
+        let g0 = Gaussian { x: StateVec::new(100.0, -50.0, 0.0, 0.0, 0.0), p: StateCov::from_diagonal(&StateVec::new(400.0, 400.0, 49.0, 49.0, 7e-4)) };
+        let (mut a, mut b) = (imm.init(g0, Some(&VESSEL_MU0)), imm.init(g0, Some(&VESSEL_MU0)));
+        let r = Matrix2::new(150.0, 20.0, 20.0, 90.0);
+        for k in 1..400 {
+            let t = k as f64 * 2.5;
+            let z = Vector2::new(100.0 + 300.0 * (t / 200.0).sin() + rng.random_range(-10.0..10.0), -50.0 + 300.0 * (1.0 - (t / 200.0).cos()) + rng.random_range(-10.0..10.0));
+            let (pa, pb) = (imm.predict(&a, 2.5), imm.predict_fast(&b, 2.5));
+            assert!(same(&pa, &pb, n), "step {k}");
+            a = imm.update(&pa, &z, &r).unwrap().0;
+            b = imm.update(&pb, &z, &r).unwrap().0;
+            assert!(same_gaussian(&imm.combine(&a), &imm.combine_fast(&b)), "step {k}");
+        }
+    }
 }

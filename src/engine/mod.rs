@@ -164,7 +164,7 @@ pub struct Engine {
     /// Live tracks, in order of creation (so of track number).
     tracks: Vec<Track>,
     /// Grid cell → indices into `tracks`.
-    grid: HashMap<(i32, i32), Vec<u32>>,
+    grid: CellMap,
     wide: Vec<u32>,
     /// Identity → index into `tracks`.
     identities: HashMap<Arc<str>, u32>,
@@ -209,6 +209,34 @@ pub(crate) fn imm_gate(n_models: usize, pred: &imm::ImmState, lead: f64, z: &Vec
     }
     let m = terms.iter().copied().fold(f64::NEG_INFINITY, f64::max);
     Some(m + terms.iter().map(|t| (t - m).exp()).sum::<f64>().ln())
+}
+
+/// Grid cell → indices into the track table. The key is two small
+/// integers that the engine makes itself, so a multiplicative hash does:
+/// the standard library's SipHash (made to resist chosen keys) was a
+/// tenth of the engine's time in the busy demo.
+type CellMap = HashMap<(i32, i32), Vec<u32>, std::hash::BuildHasherDefault<CellHasher>>;
+
+/// Fibonacci-style hashing of the cell's two coordinates (the Fx hash's
+/// step, common practice).
+#[derive(Default)]
+struct CellHasher(u64);
+
+impl std::hash::Hasher for CellHasher {
+    fn finish(&self) -> u64 {
+        self.0
+    }
+    fn write(&mut self, bytes: &[u8]) {
+        for &b in bytes {
+            self.write_u64(b as u64);
+        }
+    }
+    fn write_i32(&mut self, v: i32) {
+        self.write_u64(v as u32 as u64);
+    }
+    fn write_u64(&mut self, v: u64) {
+        self.0 = (self.0.rotate_left(5) ^ v).wrapping_mul(0x51_7c_c1_b7_27_22_0a_95);
+    }
 }
 
 fn cell_of(p: &Vector2<f64>) -> (i32, i32) {
@@ -271,7 +299,7 @@ impl Engine {
             max_plot_var,
             max_accel_psd: t.quiet_accel_psd.max(t.manoeuvre_accel_psd).max(t.turn_accel_psd),
             tracks: Vec::new(),
-            grid: HashMap::new(),
+            grid: CellMap::default(),
             wide: Vec::new(),
             identities: HashMap::new(),
             next_number: 1,
@@ -412,7 +440,7 @@ impl Engine {
     /// a measurement.
     fn status_record(&self, t: &Track, time: Timestamp) -> TrackRecord {
         let dt = time.secs_since(t.time).max(0.0);
-        let g = self.imm.combine(&if dt > 0.0 { self.imm.predict(&t.state, dt) } else { t.state });
+        let g = self.imm.combine_fast(&if dt > 0.0 { self.imm.predict_fast(&t.state, dt) } else { t.state });
         self.record_of(t, time, &g, None)
     }
 
@@ -425,7 +453,7 @@ impl Engine {
         p[(4, 4)] = INIT_TURN_SIGMA * INIT_TURN_SIGMA;
         let x = StateVec::new(z.x, z.y, 0.0, 0.0, 0.0);
         let state = self.imm.init(Gaussian { x, p }, Some(&self.mu0));
-        let est = self.imm.combine(&state);
+        let est = self.imm.combine_fast(&state);
         let mut t = Track::new(self.next_number, state, est, time, sensor);
         self.next_number += 1;
         self.stats.tracks_started += 1;
@@ -462,7 +490,7 @@ impl Engine {
     fn update_track(&mut self, idx: u32, z: &Vector2<f64>, r: &Matrix2<f64>, time: Timestamp, sensor: SensorId, out: &mut Vec<TrackRecord>) -> bool {
         let t = &self.tracks[idx as usize];
         let dt = time.secs_since(t.time).max(0.0);
-        let pred = if dt > 0.0 { self.imm.predict(&t.state, dt) } else { t.state };
+        let pred = if dt > 0.0 { self.imm.predict_fast(&t.state, dt) } else { t.state };
         let Some((state, _ll)) = self.imm.update(&pred, z, r) else { return false };
         let first_hit_this_scan = match (self.models[sensor as usize].kind, self.sensor_state[sensor as usize].last_scan_end) {
             (SensorKind::Transponder, _) => true,
@@ -470,7 +498,7 @@ impl Engine {
         };
         let rules = self.rules;
         let max_speed = self.max_speed_mps;
-        let est = self.imm.combine(&state);
+        let est = self.imm.combine_fast(&state);
         let t = &mut self.tracks[idx as usize];
         t.state = state;
         t.est = est;
@@ -558,7 +586,7 @@ impl Engine {
                     t.visit = serial;
                     t.col = sc.col_track.len() as u32;
                     let dt = batch.first.secs_since(t.time).max(0.0);
-                    let pred = if dt > 0.0 { self.imm.predict(&t.state, dt) } else { t.state };
+                    let pred = if dt > 0.0 { self.imm.predict_fast(&t.state, dt) } else { t.state };
                     sc.col_track.push(idx);
                     sc.gate_pred.push(pred);
                 }
@@ -755,7 +783,11 @@ impl Engine {
         let before = self.tracks.len();
         self.tracks.retain(|t| t.status != TrackStatus::Ended);
         self.stats.tracks_ended += (before - self.tracks.len()) as u64;
-        self.grid.clear();
+        // Refill the cells in place: most keep their tracks from one scan
+        // to the next, so their buffers are reused.
+        for v in self.grid.values_mut() {
+            v.clear();
+        }
         self.wide.clear();
         self.identities.clear();
         for (i, t) in self.tracks.iter().enumerate() {
@@ -767,5 +799,6 @@ impl Engine {
                 self.identities.insert(id.clone(), i as u32);
             }
         }
+        self.grid.retain(|_, v| !v.is_empty());
     }
 }
