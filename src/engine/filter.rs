@@ -85,6 +85,39 @@ impl Motion {
         Gaussian { x, p: symmetric_sum(&fp, &q) }
     }
 
+    /// The part of [`Motion::predict_fast`] that gating and position
+    /// reports read: the predicted position and velocity
+    /// `[e, n, ve, vn]` and the position covariance `[ee, en, nn]`, the
+    /// same numbers as the full prediction's. `p` must be exactly
+    /// symmetric; for the CV model only its first four rows and columns
+    /// are read.
+    pub fn predict_position(&self, g: &Gaussian, dt: f64) -> ([f64; 4], [f64; 3]) {
+        let dt = sanitize_dt(dt);
+        let (x, f) = self.transition(&g.x, dt);
+        let q = self.process_noise(dt);
+        let p = &g.p;
+        // X = F P Fᵀ on the position block, as `cv_sandwich` and
+        // `turn_sandwich` sum it.
+        let x2 = match *self {
+            Motion::ConstantVelocity { .. } => {
+                let m0 = |j: usize| p[(0, j)] + p[(2, j)] * dt;
+                let m1 = |j: usize| p[(1, j)] + p[(3, j)] * dt;
+                [[m0(0) + m0(2) * dt, m0(1) + m0(3) * dt], [m1(0) + m1(2) * dt, m1(1) + m1(3) * dt]]
+            }
+            Motion::CoordinatedTurn { .. } => {
+                let mut m = [[0.0; 5]; 2];
+                for j in 0..5 {
+                    m[0][j] = p[(0, j)] + p[(2, j)] * f[(0, 2)] + p[(3, j)] * f[(0, 3)] + p[(4, j)] * f[(0, 4)];
+                    m[1][j] = p[(1, j)] + p[(2, j)] * f[(1, 2)] + p[(3, j)] * f[(1, 3)] + p[(4, j)] * f[(1, 4)];
+                }
+                let col = |i: usize, k: usize| m[i][k] + m[i][2] * f[(k, 2)] + m[i][3] * f[(k, 3)] + m[i][4] * f[(k, 4)];
+                [[col(0, 0), col(0, 1)], [col(1, 0), col(1, 1)]]
+            }
+        };
+        let en = ((x2[0][1] + q[(0, 1)]) + (x2[1][0] + q[(1, 0)])) * 0.5;
+        ([x[0], x[1], x[2], x[3]], [x2[0][0] + q[(0, 0)], en, x2[1][1] + q[(1, 1)]])
+    }
+
     /// The predicted mean `f(x)` after `dt` seconds and the Jacobian of the
     /// transition at `x` (for the CV model, the transition matrix itself).
     pub fn transition(&self, x: &StateVec, dt: f64) -> (StateVec, StateCov) {
@@ -368,8 +401,16 @@ impl Innovation {
 /// Innovation of position measurement `z` with covariance `r`; `None` if S
 /// is not positive definite.
 pub fn innovation(g: &Gaussian, z: &Vector2<f64>, r: &Matrix2<f64>) -> Option<Innovation> {
-    let nu = z - g.x.fixed_rows::<2>(0);
-    let s = symmetric(g.p.fixed_view::<2, 2>(0, 0) + r);
+    let pos = Vector2::new(g.x[0], g.x[1]);
+    let p = g.p.fixed_view::<2, 2>(0, 0).into_owned();
+    innovation_of_position(&pos, &p, z, r)
+}
+
+/// [`innovation`] from the position part of a state alone: its mean and
+/// its 2×2 covariance block (the same arithmetic).
+pub fn innovation_of_position(pos: &Vector2<f64>, p: &Matrix2<f64>, z: &Vector2<f64>, r: &Matrix2<f64>) -> Option<Innovation> {
+    let nu = z - pos;
+    let s = symmetric(p + r);
     // 2×2 Cholesky by hand: S = L Lᵀ, L = [[l11, 0], [l21, l22]].
     let (a, b, d) = (s[(0, 0)], s[(1, 0)], s[(1, 1)]);
     if !a.is_finite() || a <= 0.0 {
@@ -524,6 +565,10 @@ pub(crate) mod fast_path_tests {
                 for (a, b) in got.x.iter().chain(got.p.iter()).zip(want.x.iter().chain(want.p.iter())) {
                     assert!(a == b, "trial {trial} {m:?} dt {dt}: {a:e} vs {b:e}");
                 }
+                let (x, p) = m.predict_position(&g, dt);
+                let want_p = [want.p[(0, 0)], want.p[(0, 1)], want.p[(1, 1)]];
+                assert!(x.iter().zip(want.x.iter()).all(|(a, b)| a == b), "trial {trial} {m:?}: {x:?}");
+                assert!(p.iter().zip(want_p.iter()).all(|(a, b)| a == b), "trial {trial} {m:?}: {p:?} vs {want_p:?}");
             }
         }
     }

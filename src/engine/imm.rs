@@ -74,6 +74,51 @@ pub enum ImmError {
     ModelParameter,
 }
 
+/// What gating and status reports need of a predicted [`ImmState`]: per
+/// model the position and velocity `[e, n, ve, vn]` and the position
+/// covariance `[ee, en, nn]`, and the model probabilities.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct PositionPrediction {
+    pub x: [[f64; 4]; MAX_MODELS],
+    pub p: [[f64; 3]; MAX_MODELS],
+    pub mu: [f64; MAX_MODELS],
+}
+
+impl PositionPrediction {
+    /// The position part of a state as it is (no time step).
+    pub fn of(s: &ImmState) -> PositionPrediction {
+        let mut out = PositionPrediction { x: [[0.0; 4]; MAX_MODELS], p: [[0.0; 3]; MAX_MODELS], mu: s.mu };
+        for (j, c) in s.comps.iter().enumerate() {
+            out.x[j] = [c.x[0], c.x[1], c.x[2], c.x[3]];
+            out.p[j] = [c.p[(0, 0)], c.p[(0, 1)], c.p[(1, 1)]];
+        }
+        out
+    }
+
+    /// The moment-matched position and velocity and position covariance
+    /// of the mixture over the first `n` models: the same numbers as
+    /// those entries of [`Imm::combine_fast`] of the full state.
+    pub fn combine(&self, n: usize) -> ([f64; 4], [f64; 3]) {
+        let mut x = [0.0; 4];
+        for (c, &wi) in self.x[..n].iter().zip(&self.mu[..n]) {
+            for k in 0..4 {
+                x[k] += c[k] * wi;
+            }
+        }
+        let mut p = [0.0; 3];
+        for ((c, cp), &wi) in self.x[..n].iter().zip(&self.p[..n]).zip(&self.mu[..n]) {
+            if wi == 0.0 {
+                continue;
+            }
+            let (d0, d1) = (c[0] - x[0], c[1] - x[1]);
+            p[0] += (cp[0] + d0 * d0) * wi;
+            p[1] += (cp[1] + d0 * d1) * wi;
+            p[2] += (cp[2] + d1 * d1) * wi;
+        }
+        (x, p)
+    }
+}
+
 /// Initial model probabilities for a new track with [`Imm::vessel_default`]:
 /// most new tracks are vessels under way on a steady course (common
 /// practice).
@@ -282,6 +327,37 @@ impl Imm {
         moment_match_fast(&s.comps[..self.n], &s.mu[..self.n])
     }
 
+    /// The part of [`Imm::predict_fast`] that gating and status reports
+    /// read ([`PositionPrediction`]), with the same numbers: the mixing
+    /// of a CV model sums only the position and velocity block, which is
+    /// all its prediction of the position reads.
+    pub fn predict_position(&self, s: &ImmState, dt: f64) -> PositionPrediction {
+        let n = self.n;
+        let pi = self.transition_matrix(dt);
+        let mut out = PositionPrediction { x: [[0.0; 4]; MAX_MODELS], p: [[0.0; 3]; MAX_MODELS], mu: [0.0; MAX_MODELS] };
+        let mut cbar = [0.0; MAX_MODELS];
+        for j in 0..n {
+            cbar[j] = (0..n).map(|i| pi[i][j] * s.mu[i]).sum();
+        }
+        for j in 0..n {
+            let mut w = [0.0; MAX_MODELS];
+            for i in 0..n {
+                w[i] = if cbar[j] > 0.0 {
+                    pi[i][j] * s.mu[i] / cbar[j]
+                } else {
+                    s.mu[i]
+                };
+            }
+            let mixed = match self.models[j] {
+                Motion::ConstantVelocity { .. } => moment_match_block::<4>(&s.comps[..n], &w[..n]),
+                Motion::CoordinatedTurn { .. } => moment_match_block::<5>(&s.comps[..n], &w[..n]),
+            };
+            (out.x[j], out.p[j]) = self.models[j].predict_position(&mixed, dt);
+        }
+        out.mu = normalized(cbar, n);
+        out
+    }
+
     /// The moment-matched single Gaussian of the mixture.
     pub fn combine(&self, s: &ImmState) -> Gaussian {
         moment_match(&s.comps[..self.n], &s.mu[..self.n])
@@ -349,28 +425,37 @@ fn moment_match(comps: &[Gaussian], w: &[f64]) -> Gaussian {
 /// entry and its mirror are the same products in the same order) and its
 /// final symmetrisation changes nothing, so the two agree to the bit.
 fn moment_match_fast(comps: &[Gaussian], w: &[f64]) -> Gaussian {
+    moment_match_block::<5>(comps, w)
+}
+
+/// [`moment_match_fast`] with the covariance summed over its first `D`
+/// rows and columns only (the rest left 0); the mean is whole. `D` is a
+/// constant so that the loops unroll.
+fn moment_match_block<const D: usize>(comps: &[Gaussian], w: &[f64]) -> Gaussian {
     let mut x = StateVec::zeros();
     for (c, &wi) in comps.iter().zip(w) {
         x += c.x * wi;
     }
-    let mut p = StateCov::zeros();
+    // Column-major, as nalgebra stores it: entry (i, j) at i + 5 j.
+    let mut p = [0.0; 25];
     for (c, &wi) in comps.iter().zip(w) {
         if wi == 0.0 {
             continue;
         }
         let d = c.x - x;
-        for j in 0..5 {
+        let cp = c.p.as_slice();
+        for j in 0..D {
             for i in 0..=j {
-                p[(i, j)] += (c.p[(i, j)] + d[i] * d[j]) * wi;
+                p[i + 5 * j] += (cp[i + 5 * j] + d[i] * d[j]) * wi;
             }
         }
     }
-    for j in 0..5 {
+    for j in 0..D {
         for i in 0..j {
-            p[(j, i)] = p[(i, j)];
+            p[j + 5 * i] = p[i + 5 * j];
         }
     }
-    Gaussian { x, p }
+    Gaussian { x, p: StateCov::from_column_slice(&p) }
 }
 
 fn normalized(mut mu: [f64; MAX_MODELS], n: usize) -> [f64; MAX_MODELS] {
@@ -422,7 +507,16 @@ mod fast_path_tests {
             let dt = if trial % 7 == 0 { 0.0 } else { rng.random_range(0.0..30.0) };
             let (want, got) = (imm.predict(&s, dt), imm.predict_fast(&s, dt));
             assert!(same(&want, &got, n), "trial {trial}");
-            assert!(same_gaussian(&imm.combine(&want), &imm.combine_fast(&want)), "trial {trial}");
+            let comb = imm.combine(&want);
+            assert!(same_gaussian(&comb, &imm.combine_fast(&want)), "trial {trial}");
+            // The position-only prediction: each model's entries, the
+            // probabilities, and the combined position part.
+            let pp = imm.predict_position(&s, dt);
+            assert_eq!(pp, PositionPrediction::of(&want), "trial {trial}");
+            let (x, p) = pp.combine(n);
+            let want_x = [comb.x[0], comb.x[1], comb.x[2], comb.x[3]];
+            let want_p = [comb.p[(0, 0)], comb.p[(0, 1)], comb.p[(1, 1)]];
+            assert!(x == want_x && p == want_p, "trial {trial}: {x:?} {p:?} vs {want_x:?} {want_p:?}");
         }
     }
 

@@ -126,7 +126,7 @@ struct SensorState {
 #[derive(Default)]
 struct Scratch {
     cand: Vec<u32>,
-    gate_pred: Vec<imm::ImmState>,
+    gate_pred: Vec<imm::PositionPrediction>,
     col_track: Vec<u32>,
     pairs: Vec<(u32, u32, f64)>,
     row_alone: Vec<f64>,
@@ -237,6 +237,41 @@ impl std::hash::Hasher for CellHasher {
     fn write_u64(&mut self, v: u64) {
         self.0 = (self.0.rotate_left(5) ^ v).wrapping_mul(0x51_7c_c1_b7_27_22_0a_95);
     }
+}
+
+/// [`imm_gate`] on the position part of a prediction (what the GNN path
+/// keeps per track and batch): the same arithmetic, so the same result.
+fn imm_gate_position(n_models: usize, pred: &imm::PositionPrediction, lead: f64, z: &Vector2<f64>, r: &Matrix2<f64>, gate_d2: f64) -> Option<f64> {
+    let mut inside = false;
+    let mut terms = [f64::NEG_INFINITY; imm::MAX_MODELS];
+    for j in 0..n_models {
+        let mu = pred.mu[j];
+        if !(mu > 0.0) {
+            continue;
+        }
+        let (x, p) = (&pred.x[j], &pred.p[j]);
+        let pos = Vector2::new(x[0] + x[2] * lead, x[1] + x[3] * lead);
+        let Some(inn) = filter::innovation_of_position(&pos, &Matrix2::new(p[0], p[1], p[1], p[2]), z, r) else { continue };
+        inside |= inn.d2 <= gate_d2;
+        terms[j] = mu.ln() + inn.log_likelihood();
+    }
+    if !inside {
+        return None;
+    }
+    let m = terms.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    Some(m + terms.iter().map(|t| (t - m).exp()).sum::<f64>().ln())
+}
+
+/// A Gaussian holding only the position and velocity `x` and the
+/// position covariance `p` of a [`imm::PositionPrediction::combine`], the
+/// parts a track record reads.
+fn position_gaussian(x: [f64; 4], p: [f64; 3]) -> Gaussian {
+    let mut g = Gaussian { x: StateVec::new(x[0], x[1], x[2], x[3], 0.0), p: StateCov::zeros() };
+    g.p[(0, 0)] = p[0];
+    g.p[(0, 1)] = p[1];
+    g.p[(1, 0)] = p[1];
+    g.p[(1, 1)] = p[2];
+    g
 }
 
 fn cell_of(p: &Vector2<f64>) -> (i32, i32) {
@@ -440,7 +475,12 @@ impl Engine {
     /// a measurement.
     fn status_record(&self, t: &Track, time: Timestamp) -> TrackRecord {
         let dt = time.secs_since(t.time).max(0.0);
-        let g = self.imm.combine_fast(&if dt > 0.0 { self.imm.predict_fast(&t.state, dt) } else { t.state });
+        let g = if dt > 0.0 {
+            let (x, p) = self.imm.predict_position(&t.state, dt).combine(self.imm.n_models());
+            position_gaussian(x, p)
+        } else {
+            t.est
+        };
         self.record_of(t, time, &g, None)
     }
 
@@ -586,7 +626,7 @@ impl Engine {
                     t.visit = serial;
                     t.col = sc.col_track.len() as u32;
                     let dt = batch.first.secs_since(t.time).max(0.0);
-                    let pred = if dt > 0.0 { self.imm.predict_fast(&t.state, dt) } else { t.state };
+                    let pred = if dt > 0.0 { self.imm.predict_position(&t.state, dt) } else { imm::PositionPrediction::of(&t.state) };
                     sc.col_track.push(idx);
                     sc.gate_pred.push(pred);
                 }
@@ -596,7 +636,7 @@ impl Engine {
                 }
                 let col = t.col as usize;
                 let lead = plot.det.time.secs_since(batch.first);
-                let Some(ll) = imm_gate(self.imm.n_models(), &sc.gate_pred[col], lead, &plot.z, &plot.r, self.gate_d2) else { continue };
+                let Some(ll) = imm_gate_position(self.imm.n_models(), &sc.gate_pred[col], lead, &plot.z, &plot.r, self.gate_d2) else { continue };
                 if t.status.is_firm() {
                     sc.near_firm[row] = true;
                 }
@@ -646,7 +686,7 @@ impl Engine {
                     if t.last_hit(sensor).is_some_and(|h| plot.det.time.secs_since(h) < min_gap) {
                         continue;
                     }
-                    if let Some(ll) = imm_gate(self.imm.n_models(), &sc.gate_pred[col], lead, &plot.z, &plot.r, SECOND_CHANCE_SCALE * self.gate_d2) {
+                    if let Some(ll) = imm_gate_position(self.imm.n_models(), &sc.gate_pred[col], lead, &plot.z, &plot.r, SECOND_CHANCE_SCALE * self.gate_d2) {
                         if best.is_none_or(|(b, _)| ll > b) {
                             best = Some((ll, col));
                         }
