@@ -93,29 +93,33 @@ impl Motion {
     /// are read.
     pub fn predict_position(&self, g: &Gaussian, dt: f64) -> ([f64; 4], [f64; 3]) {
         let dt = sanitize_dt(dt);
-        let (x, f) = self.transition(&g.x, dt);
-        let q = self.process_noise(dt);
         let p = &g.p;
-        // X = F P Fᵀ on the position block, as `cv_sandwich` and
-        // `turn_sandwich` sum it.
-        let x2 = match *self {
-            Motion::ConstantVelocity { .. } => {
+        match *self {
+            Motion::ConstantVelocity { accel_psd } => {
+                // F x and the position block of F P Fᵀ + Q written out;
+                // the terms left out are products with F's zeros.
+                let x = &g.x;
+                let mean = [x[0] + x[2] * dt, x[1] + x[3] * dt, x[2], x[3]];
                 let m0 = |j: usize| p[(0, j)] + p[(2, j)] * dt;
                 let m1 = |j: usize| p[(1, j)] + p[(3, j)] * dt;
-                [[m0(0) + m0(2) * dt, m0(1) + m0(3) * dt], [m1(0) + m1(2) * dt, m1(1) + m1(3) * dt]]
+                // As `cwna_noise` forms it; its east–north entry is 0.
+                let q = accel_psd * dt * dt * dt / 3.0;
+                let en = ((m0(1) + m0(3) * dt + 0.0) + (m1(0) + m1(2) * dt + 0.0)) * 0.5;
+                (mean, [m0(0) + m0(2) * dt + q, en, m1(1) + m1(3) * dt + q])
             }
             Motion::CoordinatedTurn { .. } => {
+                let (x, f) = self.transition(&g.x, dt);
+                let q = self.process_noise(dt);
                 let mut m = [[0.0; 5]; 2];
                 for j in 0..5 {
                     m[0][j] = p[(0, j)] + p[(2, j)] * f[(0, 2)] + p[(3, j)] * f[(0, 3)] + p[(4, j)] * f[(0, 4)];
                     m[1][j] = p[(1, j)] + p[(2, j)] * f[(1, 2)] + p[(3, j)] * f[(1, 3)] + p[(4, j)] * f[(1, 4)];
                 }
                 let col = |i: usize, k: usize| m[i][k] + m[i][2] * f[(k, 2)] + m[i][3] * f[(k, 3)] + m[i][4] * f[(k, 4)];
-                [[col(0, 0), col(0, 1)], [col(1, 0), col(1, 1)]]
+                let en = ((col(0, 1) + q[(0, 1)]) + (col(1, 0) + q[(1, 0)])) * 0.5;
+                ([x[0], x[1], x[2], x[3]], [col(0, 0) + q[(0, 0)], en, col(1, 1) + q[(1, 1)]])
             }
-        };
-        let en = ((x2[0][1] + q[(0, 1)]) + (x2[1][0] + q[(1, 0)])) * 0.5;
-        ([x[0], x[1], x[2], x[3]], [x2[0][0] + q[(0, 0)], en, x2[1][1] + q[(1, 1)]])
+        }
     }
 
     /// The predicted mean `f(x)` after `dt` seconds and the Jacobian of the
@@ -469,6 +473,65 @@ pub fn update(g: &Gaussian, z: &Vector2<f64>, r: &Matrix2<f64>) -> Option<(Gauss
     Some((out, inn))
 }
 
+/// The same update as [`update`], to the bit for finite input (zeros may
+/// differ in sign): the Joseph form written out entry by entry in the
+/// order nalgebra's products sum it, so the engine's hot path avoids the
+/// generic matrix products. [`update`] stays the reference the filterpy
+/// checks pin; the tests hold the two together.
+pub fn update_fast(g: &Gaussian, z: &Vector2<f64>, r: &Matrix2<f64>) -> Option<(Gaussian, Innovation)> {
+    let inn = innovation(g, z, r)?;
+    let p = g.p.as_slice();
+    let si = &inn.s_inv;
+    // Column-major 5×5: entry (i, j) at i + 5 j.
+    let at = |m: &[f64], i: usize, j: usize| m[i + 5 * j];
+    // K = P[:, 0..2] S⁻¹.
+    let mut k = [[0.0; 2]; 5];
+    for (i, ki) in k.iter_mut().enumerate() {
+        for (c, kic) in ki.iter_mut().enumerate() {
+            *kic = si[(0, c)] * at(p, i, 0) + si[(1, c)] * at(p, i, 1);
+        }
+    }
+    let mut x = g.x;
+    for (i, xi) in x.iter_mut().enumerate() {
+        *xi += inn.nu[0] * k[i][0] + inn.nu[1] * k[i][1];
+    }
+    let r01 = (r[(0, 1)] + r[(1, 0)]) * 0.5;
+    let r = [[r[(0, 0)], r01], [r01, r[(1, 1)]]];
+    // A = P − K P[0..2, :], B = A − A[:, 0..2] Kᵀ, and K R (5×2).
+    let mut a = [0.0; 25];
+    for j in 0..5 {
+        for i in 0..5 {
+            a[i + 5 * j] = at(p, i, j) - (at(p, 0, j) * k[i][0] + at(p, 1, j) * k[i][1]);
+        }
+    }
+    let mut kr = [[0.0; 2]; 5];
+    for (i, kri) in kr.iter_mut().enumerate() {
+        for (c, v) in kri.iter_mut().enumerate() {
+            *v = r[0][c] * k[i][0] + r[1][c] * k[i][1];
+        }
+    }
+    let full = |i: usize, j: usize| {
+        let b = a[i + 5 * j] - (k[j][0] * a[i] + k[j][1] * a[i + 5]);
+        b + (k[j][0] * kr[i][0] + k[j][1] * kr[i][1])
+    };
+    let mut out = StateCov::zeros();
+    for i in 0..5 {
+        // (v + v)·0.5 is v exactly.
+        out[(i, i)] = full(i, i);
+        for j in i + 1..5 {
+            let v = (full(i, j) + full(j, i)) * 0.5;
+            out[(i, j)] = v;
+            out[(j, i)] = v;
+        }
+    }
+    // Every entry finite, without a branch per entry.
+    let finite = out.as_slice().iter().chain(x.as_slice()).fold(true, |ok, v| ok & v.is_finite());
+    if !finite {
+        return None;
+    }
+    Some((Gaussian { x, p: out }, inn))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -542,6 +605,25 @@ pub(crate) mod fast_path_tests {
             };
         }
         Gaussian { x, p: symmetric(p) }
+    }
+
+    #[test]
+    fn fast_update_is_the_reference_update() {
+        let mut rng = ChaCha8Rng::seed_from_u64(0x0bda);
+        for trial in 0..20_000 {
+            let g = random_gaussian(&mut rng);
+            let z = Vector2::new(g.x[0] + rng.random_range(-200.0..200.0), g.x[1] + rng.random_range(-200.0..200.0));
+            let (a, b, c): (f64, f64, f64) = (rng.random_range(10.0..3000.0), rng.random_range(10.0..3000.0), rng.random_range(-0.9..0.9));
+            let off = c * (a * b).sqrt();
+            // Now and then a covariance off its symmetry by rounding.
+            let r = Matrix2::new(a, off, off * if trial % 3 == 0 { 1.0 + 1e-15 } else { 1.0 }, b);
+            let (want, wi) = update(&g, &z, &r).unwrap();
+            let (got, gi) = update_fast(&g, &z, &r).unwrap();
+            assert_eq!(wi, gi);
+            for (x, y) in got.x.iter().chain(got.p.iter()).zip(want.x.iter().chain(want.p.iter())) {
+                assert!(x == y, "trial {trial}: {x:e} vs {y:e}");
+            }
+        }
     }
 
     #[test]

@@ -290,14 +290,19 @@ impl Imm {
         out
     }
 
-    /// The same step as [`Imm::predict`], to the bit for finite input
-    /// (zeros may differ in sign), for the engine's hot path: the mixing
-    /// sums only one triangle of each covariance ([`moment_match_fast`])
-    /// and each model predicts with [`Motion::predict_fast`]. The reference
-    /// above stays the one the filterpy checks pin; the tests hold the two
-    /// together.
+    /// The same step as [`Imm::predict`] for the engine's hot path: the
+    /// mixing sums only one triangle of each covariance
+    /// ([`moment_match_fast`]) and each model predicts with
+    /// [`Motion::predict_fast`], which gives the reference's numbers to
+    /// the bit (zeros may differ in sign). One exception: when every
+    /// component is the same Gaussian (a track no measurement has updated
+    /// yet), mixing is skipped, since any mixture of one Gaussian is that
+    /// Gaussian; the reference's sum then differs from it by rounding
+    /// (relative 1e-15). The reference above stays the one the filterpy
+    /// checks pin; the tests hold the two together.
     pub fn predict_fast(&self, s: &ImmState, dt: f64) -> ImmState {
         let n = self.n;
+        let same = one_component(s, n);
         let pi = self.transition_matrix(dt);
         let mut out = *s;
         let mut cbar = [0.0; MAX_MODELS];
@@ -313,7 +318,7 @@ impl Imm {
                     s.mu[i]
                 };
             }
-            let mixed = moment_match_fast(&s.comps[..n], &w[..n]);
+            let mixed = if same { s.comps[0] } else { moment_match_fast(&s.comps[..n], &w[..n]) };
             out.comps[j] = self.models[j].predict_fast(&mixed, dt);
         }
         out.mu = normalized(cbar, n);
@@ -322,8 +327,12 @@ impl Imm {
 
     /// [`Imm::combine`] by [`moment_match_fast`]: the same bits when the
     /// components' covariances are exactly symmetric, as every state the
-    /// IMM returns is.
+    /// IMM returns is; a state whose components are all the same Gaussian
+    /// gives that Gaussian (the reference: the same up to rounding).
     pub fn combine_fast(&self, s: &ImmState) -> Gaussian {
+        if one_component(s, self.n) {
+            return s.comps[0];
+        }
         moment_match_fast(&s.comps[..self.n], &s.mu[..self.n])
     }
 
@@ -333,6 +342,7 @@ impl Imm {
     /// all its prediction of the position reads.
     pub fn predict_position(&self, s: &ImmState, dt: f64) -> PositionPrediction {
         let n = self.n;
+        let same = one_component(s, n);
         let pi = self.transition_matrix(dt);
         let mut out = PositionPrediction { x: [[0.0; 4]; MAX_MODELS], p: [[0.0; 3]; MAX_MODELS], mu: [0.0; MAX_MODELS] };
         let mut cbar = [0.0; MAX_MODELS];
@@ -349,6 +359,7 @@ impl Imm {
                 };
             }
             let mixed = match self.models[j] {
+                _ if same => s.comps[0],
                 Motion::ConstantVelocity { .. } => moment_match_block::<4>(&s.comps[..n], &w[..n]),
                 Motion::CoordinatedTurn { .. } => moment_match_block::<5>(&s.comps[..n], &w[..n]),
             };
@@ -356,6 +367,12 @@ impl Imm {
         }
         out.mu = normalized(cbar, n);
         out
+    }
+
+    /// The same step as [`Imm::update`], to the bit for finite input, with
+    /// each model updated by [`super::filter::update_fast`].
+    pub fn update_fast(&self, pred: &ImmState, z: &Vector2<f64>, r: &Matrix2<f64>) -> Option<(ImmState, f64)> {
+        self.update_with(pred, z, r, super::filter::update_fast)
     }
 
     /// The moment-matched single Gaussian of the mixture.
@@ -372,6 +389,17 @@ impl Imm {
         pred: &ImmState,
         z: &Vector2<f64>,
         r: &Matrix2<f64>,
+    ) -> Option<(ImmState, f64)> {
+        self.update_with(pred, z, r, kalman_update)
+    }
+
+    /// [`Imm::update`] with the per-model Kalman update given.
+    fn update_with(
+        &self,
+        pred: &ImmState,
+        z: &Vector2<f64>,
+        r: &Matrix2<f64>,
+        kalman_update: fn(&Gaussian, &Vector2<f64>, &Matrix2<f64>) -> Option<(Gaussian, super::filter::Innovation)>,
     ) -> Option<(ImmState, f64)> {
         let n = self.n;
         let mut out = *pred;
@@ -418,6 +446,17 @@ fn moment_match(comps: &[Gaussian], w: &[f64]) -> Gaussian {
         x,
         p: (p + p.transpose()) * 0.5,
     }
+}
+
+/// Whether the first `n` components are one and the same Gaussian, as
+/// [`Imm::init`] leaves them.
+fn one_component(s: &ImmState, n: usize) -> bool {
+    let (x0, p0) = (s.comps[0].x.as_slice(), s.comps[0].p.as_slice());
+    // Entry by entry without a branch each (nalgebra's `==` is slower).
+    s.comps[1..n].iter().all(|c| {
+        let same = |a: &[f64], b: &[f64]| a.iter().zip(b).fold(true, |ok, (u, v)| ok & (u == v));
+        same(c.x.as_slice(), x0) && same(c.p.as_slice(), p0)
+    })
 }
 
 /// [`moment_match`] summing the upper triangle only and mirroring it. For
@@ -520,6 +559,47 @@ mod fast_path_tests {
         }
     }
 
+    /// Relative difference, against the larger magnitude of the pair and
+    /// a floor for entries that are 0 in one path.
+    fn close(a: f64, b: f64, scale: f64) -> bool {
+        (a - b).abs() <= 1e-12 * a.abs().max(b.abs()).max(scale)
+    }
+
+    #[test]
+    fn fresh_track_shortcut_is_the_reference_to_rounding() {
+        // All components one Gaussian (a new track): the fast paths skip
+        // the mixing; the reference mixes and rounds. Equal to 1e-12
+        // relative (scale: the largest entry of each covariance).
+        let mut rng = ChaCha8Rng::seed_from_u64(0x3cc);
+        let imm = Imm::vessel_default();
+        let n = imm.n_models();
+        for trial in 0..5_000 {
+            let g = random_gaussian(&mut rng);
+            let s = imm.init(g, Some(&VESSEL_MU0));
+            let dt = rng.random_range(0.0..30.0);
+            let (want, got) = (imm.predict(&s, dt), imm.predict_fast(&s, dt));
+            for j in 0..n {
+                let (a, b) = (&got.comps[j], &want.comps[j]);
+                let scale = b.p.amax();
+                // Scales per group of the state: position, velocity, turn rate.
+                let group = |i: usize| match i {
+                    0 | 1 => b.x[0].abs().max(b.x[1].abs()),
+                    2 | 3 => b.x[2].abs().max(b.x[3].abs()),
+                    _ => 1e-9,
+                };
+                assert!(a.x.iter().zip(b.x.iter()).enumerate().all(|(i, (u, v))| close(*u, *v, group(i))), "trial {trial} model {j}: {:?} {:?}", a.x, b.x);
+                let worst = a.p.iter().zip(b.p.iter()).map(|(u, v)| (u - v).abs() / u.abs().max(v.abs()).max(scale)).fold(0.0, f64::max);
+                assert!(worst <= 1e-12, "trial {trial} model {j}: {worst:e} {:?} {:?}", a.x, b.x);
+            }
+            assert_eq!(got.mu, want.mu);
+            let pp = imm.predict_position(&s, dt);
+            assert_eq!(pp, PositionPrediction::of(&got), "trial {trial}");
+            let (c_ref, c_fast) = (imm.combine(&s), imm.combine_fast(&s));
+            assert!(c_fast == g && c_ref.x.iter().zip(g.x.iter()).all(|(u, v)| close(*u, *v, 1e-9)));
+            assert!(c_ref.p.iter().zip(g.p.iter()).all(|(u, v)| close(*u, *v, g.p.amax())), "trial {trial}");
+        }
+    }
+
     #[test]
     fn fast_path_follows_the_reference_over_a_run() {
         // Predict and update in turn along a turning track, starting both
@@ -528,15 +608,22 @@ mod fast_path_tests {
         let n = imm.n_models();
         let mut rng = ChaCha8Rng::seed_from_u64(0x2bb);
         let g0 = Gaussian { x: StateVec::new(100.0, -50.0, 0.0, 0.0, 0.0), p: StateCov::from_diagonal(&StateVec::new(400.0, 400.0, 49.0, 49.0, 7e-4)) };
-        let (mut a, mut b) = (imm.init(g0, Some(&VESSEL_MU0)), imm.init(g0, Some(&VESSEL_MU0)));
+        // Distinct components from the start (the shortcut for one
+        // component is checked above, to rounding).
+        let mut s0 = imm.init(g0, Some(&VESSEL_MU0));
+        s0.comps[1].x[4] = 0.01;
+        s0.comps[2].x[2] = 0.5;
+        let (mut a, mut b) = (s0, s0);
         let r = Matrix2::new(150.0, 20.0, 20.0, 90.0);
         for k in 1..400 {
             let t = k as f64 * 2.5;
             let z = Vector2::new(100.0 + 300.0 * (t / 200.0).sin() + rng.random_range(-10.0..10.0), -50.0 + 300.0 * (1.0 - (t / 200.0).cos()) + rng.random_range(-10.0..10.0));
             let (pa, pb) = (imm.predict(&a, 2.5), imm.predict_fast(&b, 2.5));
             assert!(same(&pa, &pb, n), "step {k}");
-            a = imm.update(&pa, &z, &r).unwrap().0;
-            b = imm.update(&pb, &z, &r).unwrap().0;
+            let (ua, la) = imm.update(&pa, &z, &r).unwrap();
+            let (ub, lb) = imm.update_fast(&pb, &z, &r).unwrap();
+            assert!(same(&ua, &ub, n) && la == lb, "step {k}");
+            (a, b) = (ua, ub);
             assert!(same_gaussian(&imm.combine(&a), &imm.combine_fast(&b)), "step {k}");
         }
     }

@@ -531,7 +531,7 @@ impl Engine {
         let t = &self.tracks[idx as usize];
         let dt = time.secs_since(t.time).max(0.0);
         let pred = if dt > 0.0 { self.imm.predict_fast(&t.state, dt) } else { t.state };
-        let Some((state, _ll)) = self.imm.update(&pred, z, r) else { return false };
+        let Some((state, _ll)) = self.imm.update_fast(&pred, z, r) else { return false };
         let first_hit_this_scan = match (self.models[sensor as usize].kind, self.sensor_state[sensor as usize].last_scan_end) {
             (SensorKind::Transponder, _) => true,
             (_, last_end) => t.last_hit(sensor).is_none_or(|h| Some(h) <= last_end),
