@@ -100,10 +100,19 @@ fn fixed(out: &mut Line<'_>, v: f64, d: u32) {
         out.push_str(&format!("{:.*}", d as usize, v));
         return;
     }
-    // Digits from the right: the fraction, the point, the integer part.
-    let mut buf = [b'0'; 28];
-    let mut i = buf.len();
     let (mut int, mut frac) = (n / scale, n % scale);
+    let neg = x < 0.0 && n != 0;
+    let mut int_digits = 1;
+    while int_digits < 20 && int >= POW10_U64[int_digits] {
+        int_digits += 1;
+    }
+    let width = neg as usize + int_digits + if d > 0 { 1 + d as usize } else { 0 };
+    // Right to left into a fixed buffer, the number left-aligned: the
+    // fraction, the point, the integer part, the sign. The whole buffer
+    // is appended and the tail cut off: a copy of constant size is a few
+    // vector moves, where a copy of the exact size is a `memcpy` call.
+    let mut buf = [b'0'; 32];
+    let mut i = width;
     if d > 0 {
         let mut k = d;
         while k >= 2 {
@@ -131,12 +140,24 @@ fn fixed(out: &mut Line<'_>, v: f64, d: u32) {
         i -= 1;
         buf[i] = b'0' + int as u8;
     }
-    if x < 0.0 && n != 0 {
-        i -= 1;
-        buf[i] = b'-';
+    if neg {
+        buf[0] = b'-';
     }
-    out.0.extend_from_slice(&buf[i..]);
+    let end = out.0.len() + width;
+    out.0.extend_from_slice(&buf);
+    out.0.truncate(end);
 }
+
+/// Powers of ten that fit a u64, for counting digits.
+const POW10_U64: [u64; 20] = {
+    let mut t = [1u64; 20];
+    let mut k = 1;
+    while k < 20 {
+        t[k] = t[k - 1] * 10;
+        k += 1;
+    }
+    t
+};
 
 /// The two decimal digits of `v` (< 100).
 fn pair(v: u64) -> &'static [u8] {
@@ -464,6 +485,24 @@ mod tests {
             }
             assert_eq!(round_half_away(v * 100.0).to_bits(), (v * 100.0).round().to_bits(), "{v:e}");
         }
+    }
+
+    #[test]
+    fn long_strings_and_huge_numbers() {
+        // Long strings, many sensors, numbers past the integer path.
+        let mut r = TrackRecord::from_json(r#"{"type":"track","time":"2026-05-14T06:00:02Z","track":1,"status":"tentative","lat_deg":56.0,"lon_deg":7.0,"east_m":0.0,"north_m":0.0,"vel_east_mps":0.0,"vel_north_mps":0.0,"speed_kn":0.0,"course_deg":0.0,"pos_cov_m2":[[1.0,0.0],[0.0,1.0]],"sensors":[],"identity":null}"#).unwrap().unwrap();
+        r.identity = Some("é\"x".repeat(300).into());
+        r.sensors = (0..40).map(|i| Arc::<str>::from(format!("sensor-{i}-{}", "n".repeat(i * 7)))).collect();
+        r.pos_cov_m2[0][0] = 1.5e300;
+        r.east_m = -2.5e17;
+        let back = TrackRecord::from_json(&r.to_json()).unwrap().unwrap();
+        assert_eq!(back.identity, r.identity);
+        assert_eq!(back.sensors, r.sensors);
+        assert_eq!(back.pos_cov_m2[0][0], 1.5e300);
+        assert_eq!(back.east_m, -2.5e17);
+        let mut bytes = Vec::new();
+        r.write_json_bytes(&mut bytes);
+        assert_eq!(String::from_utf8(bytes).unwrap(), r.to_json());
     }
 
     #[test]
