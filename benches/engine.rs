@@ -1,10 +1,15 @@
 //! Engine throughput over a busy feed, and the cost of `track` against
 //! `check` on the same file.
 //!
-//! Input: the busy demo scenario (demo-feeds/busy-afternoon/feed.jsonl),
-//! replayed several times back to back with shifted times so that a run
-//! is long enough to time. Figures go in BENCHMARKS.md.
+//! Input: the busy demo scenario (demo-feeds/busy-afternoon/feed.jsonl).
+//! Figures go in BENCHMARKS.md.
+//!
+//! Each case runs twice: timed by the wall clock (criterion's default) and
+//! by the thread's own CPU time (`cpu/…`, `CLOCK_THREAD_CPUTIME_ID`). The
+//! machine is shared, so the CPU time is the steadier figure of what one
+//! core does.
 
+use criterion::measurement::Measurement;
 use criterion::{Criterion, Throughput, criterion_group, criterion_main};
 use skerry::config::Config;
 use skerry::engine::Engine;
@@ -32,18 +37,18 @@ fn run_engine(cfg: &Config, records: &[Record]) -> usize {
     n + out.len()
 }
 
-fn engine_throughput(c: &mut Criterion) {
+fn engine_throughput<M: Measurement>(c: &mut Criterion<M>, prefix: &str) {
     let (cfg, feed) = scenario();
     let records = read_feeds(&[feed.clone()], &cfg).expect("feed").records;
     let plots = records.iter().filter(|r| matches!(r, Record::Detection(_))).count() as u64;
-    let mut g = c.benchmark_group("engine");
+    let mut g = c.benchmark_group(format!("{prefix}engine"));
     g.sample_size(10);
     g.throughput(Throughput::Elements(plots));
     g.bench_function("busy_afternoon_plots", |b| b.iter(|| black_box(run_engine(&cfg, &records))));
     g.finish();
 
     // check = read + decode + screen + order; track = that + engine + JSON out.
-    let mut g = c.benchmark_group("offline");
+    let mut g = c.benchmark_group(format!("{prefix}offline"));
     g.sample_size(10);
     g.throughput(Throughput::Elements(plots));
     g.bench_function("check", |b| b.iter(|| black_box(read_feeds(&[feed.clone()], &cfg).expect("feed").records.len())));
@@ -52,21 +57,96 @@ fn engine_throughput(c: &mut Criterion) {
             let f = read_feeds(&[feed.clone()], &cfg).expect("feed");
             let mut engine = Engine::new(&cfg).expect("engine");
             let mut out = Vec::new();
-            let mut line = String::new();
+            // As `skerry track` writes: lines as bytes into one buffer,
+            // emptied every 64 KiB.
+            let mut line: Vec<u8> = Vec::with_capacity(1 << 17);
             let mut bytes = 0usize;
             for r in &f.records {
                 engine.handle(r, &mut out);
                 for t in out.drain(..) {
+                    t.write_json_bytes(&mut line);
+                    line.push(b'\n');
+                }
+                if line.len() >= 1 << 16 {
+                    bytes += line.len();
                     line.clear();
-                    t.write_json(&mut line);
-                    bytes += line.len() + 1;
                 }
             }
-            black_box(bytes)
+            engine.finish(&mut out);
+            for t in out.drain(..) {
+                t.write_json_bytes(&mut line);
+                line.push(b'\n');
+            }
+            black_box(bytes + line.len())
         })
     });
     g.finish();
 }
 
-criterion_group!(benches, engine_throughput);
-criterion_main!(benches);
+/// The calling thread's CPU time (Linux `CLOCK_THREAD_CPUTIME_ID`), as in
+/// benches/trade.rs.
+mod cpu {
+    use criterion::measurement::{Measurement, ValueFormatter, WallTime};
+
+    #[repr(C)]
+    struct Timespec {
+        tv_sec: i64,
+        tv_nsec: i64,
+    }
+    unsafe extern "C" {
+        fn clock_gettime(clock: i32, ts: *mut Timespec) -> i32;
+    }
+    const CLOCK_THREAD_CPUTIME_ID: i32 = 3;
+
+    fn now_ns() -> u64 {
+        let mut ts = Timespec { tv_sec: 0, tv_nsec: 0 };
+        // SAFETY: a valid, writable timespec and a clock id Linux defines.
+        let rc = unsafe { clock_gettime(CLOCK_THREAD_CPUTIME_ID, &mut ts) };
+        assert_eq!(rc, 0, "clock_gettime(CLOCK_THREAD_CPUTIME_ID) failed");
+        ts.tv_sec as u64 * 1_000_000_000 + ts.tv_nsec as u64
+    }
+
+    static WALL: WallTime = WallTime;
+
+    pub struct ThreadCpu;
+
+    impl Measurement for ThreadCpu {
+        type Intermediate = u64;
+        type Value = u64;
+        fn start(&self) -> u64 {
+            now_ns()
+        }
+        fn end(&self, i: u64) -> u64 {
+            now_ns() - i
+        }
+        fn add(&self, a: &u64, b: &u64) -> u64 {
+            a + b
+        }
+        fn zero(&self) -> u64 {
+            0
+        }
+        fn to_f64(&self, v: &u64) -> f64 {
+            *v as f64
+        }
+        fn formatter(&self) -> &dyn ValueFormatter {
+            // Values are nanoseconds, as for the wall clock.
+            WALL.formatter()
+        }
+    }
+}
+
+fn wall(c: &mut Criterion) {
+    engine_throughput(c, "");
+}
+
+fn on_cpu(c: &mut Criterion<cpu::ThreadCpu>) {
+    engine_throughput(c, "cpu/");
+}
+
+criterion_group!(wall_clock, wall);
+criterion_group! {
+    name = cpu_time;
+    config = Criterion::default().with_measurement(cpu::ThreadCpu);
+    targets = on_cpu
+}
+criterion_main!(wall_clock, cpu_time);

@@ -118,28 +118,32 @@ pub fn track(args: &TrackArgs) -> Result<()> {
         Some(p) => Box::new(std::fs::File::create(p).with_context(|| format!("{}: cannot create", p.display()))?),
         None => Box::new(std::io::stdout().lock()),
     };
-    let mut w = std::io::BufWriter::with_capacity(1 << 16, sink);
+    let mut w = sink;
     let mut out = Vec::new();
-    let mut line = String::with_capacity(512);
+    // Lines are written as bytes straight into one buffer, handed to the
+    // sink about 64 KiB at a time.
+    let mut buf: Vec<u8> = Vec::with_capacity(1 << 17);
     let mut written = 0u64;
-    let mut flush = |out: &mut Vec<crate::feed::TrackRecord>, w: &mut std::io::BufWriter<Box<dyn Write>>| -> Result<()> {
+    let mut flush = |out: &mut Vec<crate::feed::TrackRecord>, w: &mut Box<dyn Write>, last: bool| -> Result<()> {
         for r in out.drain(..) {
-            line.clear();
-            r.write_json(&mut line);
-            line.push('\n');
-            w.write_all(line.as_bytes())?;
+            r.write_json_bytes(&mut buf);
+            buf.push(b'\n');
             written += 1;
+        }
+        if last || buf.len() >= 1 << 16 {
+            w.write_all(&buf)?;
+            buf.clear();
         }
         Ok(())
     };
     for r in &feed.records {
         engine.handle(r, &mut out);
         if out.len() > 256 {
-            flush(&mut out, &mut w)?;
+            flush(&mut out, &mut w, false)?;
         }
     }
     engine.finish(&mut out);
-    flush(&mut out, &mut w)?;
+    flush(&mut out, &mut w, true)?;
     w.flush()?;
     drop(w);
     let s = engine.stats();

@@ -87,10 +87,14 @@ pub fn ecef_to_geodetic(p: Vector3<f64>) -> Geodetic {
 /// latitude error is far below 1e-9° (checked against
 /// [`ecef_to_geodetic`] in the tests). The height is not computed.
 pub fn ecef_to_lat_lon_fast(p: Vector3<f64>) -> (f64, f64) {
-    let rho = p.x.hypot(p.y);
+    // Earth-sized coordinates: x² + y² cannot overflow.
+    let rho = (p.x * p.x + p.y * p.y).sqrt();
     let ep2 = WGS84_E2 / (1.0 - WGS84_E2);
-    let beta = (WGS84_A * p.z).atan2(WGS84_B * rho);
-    let (sb, cb) = beta.sin_cos();
+    // sin and cos of the parametric latitude β = atan2(a z, b ρ), as the
+    // sides of its triangle over the hypotenuse (no trigonometry).
+    let (u, v) = (WGS84_A * p.z, WGS84_B * rho);
+    let hyp = (u * u + v * v).sqrt();
+    let (sb, cb) = if hyp > 0.0 { (u / hyp, v / hyp) } else { (0.0, 1.0) };
     let lat = (p.z + ep2 * WGS84_B * sb * sb * sb).atan2(rho - WGS84_E2 * WGS84_A * cb * cb * cb);
     (lat.to_degrees(), p.y.atan2(p.x).to_degrees())
 }
@@ -182,8 +186,12 @@ impl LocalFrame {
     /// form to well under a millimetre within 50 km (tests).
     pub fn plane_to_lat_lon_fast(&self, en: Vector2<f64>, radii: (f64, f64)) -> (f64, f64) {
         let rho2 = en.norm_squared();
-        let r = euler_radius(radii.0, radii.1, en.x.atan2(en.y)) + self.origin.h_m;
-        let r_surface = r - self.origin.h_m;
+        // Euler's radius in the azimuth of `en`, M N / (N cos² + M sin²),
+        // with cos² = n²/ρ² and sin² = e²/ρ² (no trigonometry); at the
+        // origin the azimuth is read as north, as atan2(0, 0) = 0 gives.
+        let (m, n) = radii;
+        let r_surface = if rho2 > 0.0 { m * n * rho2 / (n * en.y * en.y + m * en.x * en.x) } else { m };
+        let r = r_surface + self.origin.h_m;
         // Point on the sphere of radius r_surface about the centre of
         // curvature, which lies r below the origin.
         let up = (r_surface * r_surface - rho2).max(0.0).sqrt() - r;
@@ -297,6 +305,40 @@ impl Antenna {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// The fast plane → latitude/longitude against the exact conversion
+    /// (`plane_to_geodetic`, itself checked against geographiclib
+    /// fixtures) and against the same formulas with the trigonometric
+    /// azimuth and parametric latitude it replaced: rounding apart, the
+    /// same numbers.
+    #[test]
+    fn fast_plane_to_lat_lon_without_trigonometry() {
+        let site = LocalFrame::new(Geodetic::new(56.45, 7.35, 12.0));
+        let radii = radii_of_curvature(56.45f64.to_radians());
+        let trig = |en: Vector2<f64>| {
+            let rho2 = en.norm_squared();
+            let r = euler_radius(radii.0, radii.1, en.x.atan2(en.y)) + site.origin.h_m;
+            let r_surface = r - site.origin.h_m;
+            let up = (r_surface * r_surface - rho2).max(0.0).sqrt() - r;
+            let p = site.enu_to_ecef(Vector3::new(en.x, en.y, up));
+            let rho = p.x.hypot(p.y);
+            let ep2 = WGS84_E2 / (1.0 - WGS84_E2);
+            let (sb, cb) = (WGS84_A * p.z).atan2(WGS84_B * rho).sin_cos();
+            let lat = (p.z + ep2 * WGS84_B * sb * sb * sb).atan2(rho - WGS84_E2 * WGS84_A * cb * cb * cb);
+            (lat.to_degrees(), p.y.atan2(p.x).to_degrees())
+        };
+        for i in 0..400 {
+            let a = i as f64 * 0.37;
+            let d = (i % 40) as f64 * 1250.0;
+            let en = Vector2::new(a.sin() * d, a.cos() * d);
+            let (lat, lon) = site.plane_to_lat_lon_fast(en, radii);
+            let (lat_t, lon_t) = trig(en);
+            assert!((lat - lat_t).abs() < 1e-12 && (lon - lon_t).abs() < 1e-12, "{en:?}");
+            let exact = site.plane_to_geodetic(en, 0.0);
+            // 1e-8° is about 1 mm.
+            assert!((lat - exact.lat_deg).abs() < 1e-8 && (lon - exact.lon_deg).abs() < 1e-8, "{en:?}");
+        }
+    }
 
     #[test]
     fn ecef_round_trip_and_known_point() {

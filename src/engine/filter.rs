@@ -67,6 +67,61 @@ impl Motion {
         }
     }
 
+    /// The same prediction as [`Motion::predict`], to the bit for finite
+    /// input (zeros may differ in sign), with fewer operations: the
+    /// products with the transition matrix's structural zeros (each ±0,
+    /// which leaves a sum unchanged) are skipped, and for the CV model the
+    /// known ones too. The engine's hot path uses this one; the reference
+    /// above stays the one the filterpy and Kalata checks pin, and the
+    /// tests below hold the two together.
+    pub fn predict_fast(&self, g: &Gaussian, dt: f64) -> Gaussian {
+        let dt = sanitize_dt(dt);
+        let (x, f) = self.transition(&g.x, dt);
+        let q = self.process_noise(dt);
+        let fp = match *self {
+            Motion::ConstantVelocity { .. } => cv_sandwich(&g.p, dt),
+            Motion::CoordinatedTurn { .. } => turn_sandwich(&g.p, &f),
+        };
+        Gaussian { x, p: symmetric_sum(&fp, &q) }
+    }
+
+    /// The part of [`Motion::predict_fast`] that gating and position
+    /// reports read: the predicted position and velocity
+    /// `[e, n, ve, vn]` and the position covariance `[ee, en, nn]`, the
+    /// same numbers as the full prediction's. `p` must be exactly
+    /// symmetric; for the CV model only its first four rows and columns
+    /// are read.
+    pub fn predict_position(&self, g: &Gaussian, dt: f64) -> ([f64; 4], [f64; 3]) {
+        let dt = sanitize_dt(dt);
+        let p = &g.p;
+        match *self {
+            Motion::ConstantVelocity { accel_psd } => {
+                // F x and the position block of F P Fᵀ + Q written out;
+                // the terms left out are products with F's zeros.
+                let x = &g.x;
+                let mean = [x[0] + x[2] * dt, x[1] + x[3] * dt, x[2], x[3]];
+                let m0 = |j: usize| p[(0, j)] + p[(2, j)] * dt;
+                let m1 = |j: usize| p[(1, j)] + p[(3, j)] * dt;
+                // As `cwna_noise` forms it; its east–north entry is 0.
+                let q = accel_psd * dt * dt * dt / 3.0;
+                let en = ((m0(1) + m0(3) * dt + 0.0) + (m1(0) + m1(2) * dt + 0.0)) * 0.5;
+                (mean, [m0(0) + m0(2) * dt + q, en, m1(1) + m1(3) * dt + q])
+            }
+            Motion::CoordinatedTurn { .. } => {
+                let (x, f) = self.transition(&g.x, dt);
+                let q = self.process_noise(dt);
+                let mut m = [[0.0; 5]; 2];
+                for j in 0..5 {
+                    m[0][j] = p[(0, j)] + p[(2, j)] * f[(0, 2)] + p[(3, j)] * f[(0, 3)] + p[(4, j)] * f[(0, 4)];
+                    m[1][j] = p[(1, j)] + p[(2, j)] * f[(1, 2)] + p[(3, j)] * f[(1, 3)] + p[(4, j)] * f[(1, 4)];
+                }
+                let col = |i: usize, k: usize| m[i][k] + m[i][2] * f[(k, 2)] + m[i][3] * f[(k, 3)] + m[i][4] * f[(k, 4)];
+                let en = ((col(0, 1) + q[(0, 1)]) + (col(1, 0) + q[(1, 0)])) * 0.5;
+                ([x[0], x[1], x[2], x[3]], [col(0, 0) + q[(0, 0)], en, col(1, 1) + q[(1, 1)]])
+            }
+        }
+    }
+
     /// The predicted mean `f(x)` after `dt` seconds and the Jacobian of the
     /// transition at `x` (for the CV model, the transition matrix itself).
     pub fn transition(&self, x: &StateVec, dt: f64) -> (StateVec, StateCov) {
@@ -169,6 +224,69 @@ pub fn predict_linear(g: &Gaussian, f: &StateCov, q: &StateCov) -> Gaussian {
         x: f * g.x,
         p: symmetric(f * g.p * f.transpose() + q),
     }
+}
+
+/// `F P Fᵀ` for the CV transition over `dt`, term by term in the order
+/// nalgebra's product sums them (ascending inner index), leaving out the
+/// terms with a structural zero of F. Row and column 4 are zero.
+fn cv_sandwich(p: &StateCov, dt: f64) -> StateCov {
+    // m = F P for rows and columns 0..4: F's row 4 is zero, and column 4
+    // of m meets only zeros of Fᵀ.
+    let mut m = [[0.0; 4]; 4];
+    for j in 0..4 {
+        m[0][j] = p[(0, j)] + p[(2, j)] * dt;
+        m[1][j] = p[(1, j)] + p[(3, j)] * dt;
+        m[2][j] = p[(2, j)];
+        m[3][j] = p[(3, j)];
+    }
+    let mut out = StateCov::zeros();
+    for (i, row) in m.iter().enumerate() {
+        out[(i, 0)] = row[0] + row[2] * dt;
+        out[(i, 1)] = row[1] + row[3] * dt;
+        out[(i, 2)] = row[2];
+        out[(i, 3)] = row[3];
+    }
+    out
+}
+
+/// `F P Fᵀ` for a Jacobian with the coordinated turn's zero pattern
+/// (first two columns the identity's, last row `[0, 0, 0, 0, f44]`), in
+/// nalgebra's summation order without the structural zeros.
+fn turn_sandwich(p: &StateCov, f: &StateCov) -> StateCov {
+    let mut m = StateCov::zeros();
+    for j in 0..5 {
+        m[(0, j)] = p[(0, j)] + p[(2, j)] * f[(0, 2)] + p[(3, j)] * f[(0, 3)] + p[(4, j)] * f[(0, 4)];
+        m[(1, j)] = p[(1, j)] + p[(2, j)] * f[(1, 2)] + p[(3, j)] * f[(1, 3)] + p[(4, j)] * f[(1, 4)];
+        for i in 2..4 {
+            m[(i, j)] = p[(2, j)] * f[(i, 2)] + p[(3, j)] * f[(i, 3)] + p[(4, j)] * f[(i, 4)];
+        }
+        m[(4, j)] = p[(4, j)] * f[(4, 4)];
+    }
+    let mut out = StateCov::zeros();
+    for i in 0..5 {
+        out[(i, 0)] = m[(i, 0)] + m[(i, 2)] * f[(0, 2)] + m[(i, 3)] * f[(0, 3)] + m[(i, 4)] * f[(0, 4)];
+        out[(i, 1)] = m[(i, 1)] + m[(i, 2)] * f[(1, 2)] + m[(i, 3)] * f[(1, 3)] + m[(i, 4)] * f[(1, 4)];
+        for j in 2..4 {
+            out[(i, j)] = m[(i, 2)] * f[(j, 2)] + m[(i, 3)] * f[(j, 3)] + m[(i, 4)] * f[(j, 4)];
+        }
+        out[(i, 4)] = m[(i, 4)] * f[(4, 4)];
+    }
+    out
+}
+
+/// `symmetric(a + q)` as [`Motion::predict`] forms it.
+fn symmetric_sum(a: &StateCov, q: &StateCov) -> StateCov {
+    let mut out = StateCov::zeros();
+    for i in 0..5 {
+        // (y + y)·0.5 is y exactly.
+        out[(i, i)] = a[(i, i)] + q[(i, i)];
+        for j in i + 1..5 {
+            let v = ((a[(i, j)] + q[(i, j)]) + (a[(j, i)] + q[(j, i)])) * 0.5;
+            out[(i, j)] = v;
+            out[(j, i)] = v;
+        }
+    }
+    out
 }
 
 fn sanitize_dt(dt: f64) -> f64 {
@@ -287,8 +405,16 @@ impl Innovation {
 /// Innovation of position measurement `z` with covariance `r`; `None` if S
 /// is not positive definite.
 pub fn innovation(g: &Gaussian, z: &Vector2<f64>, r: &Matrix2<f64>) -> Option<Innovation> {
-    let nu = z - g.x.fixed_rows::<2>(0);
-    let s = symmetric(g.p.fixed_view::<2, 2>(0, 0) + r);
+    let pos = Vector2::new(g.x[0], g.x[1]);
+    let p = g.p.fixed_view::<2, 2>(0, 0).into_owned();
+    innovation_of_position(&pos, &p, z, r)
+}
+
+/// [`innovation`] from the position part of a state alone: its mean and
+/// its 2×2 covariance block (the same arithmetic).
+pub fn innovation_of_position(pos: &Vector2<f64>, p: &Matrix2<f64>, z: &Vector2<f64>, r: &Matrix2<f64>) -> Option<Innovation> {
+    let nu = z - pos;
+    let s = symmetric(p + r);
     // 2×2 Cholesky by hand: S = L Lᵀ, L = [[l11, 0], [l21, l22]].
     let (a, b, d) = (s[(0, 0)], s[(1, 0)], s[(1, 1)]);
     if !a.is_finite() || a <= 0.0 {
@@ -347,6 +473,65 @@ pub fn update(g: &Gaussian, z: &Vector2<f64>, r: &Matrix2<f64>) -> Option<(Gauss
     Some((out, inn))
 }
 
+/// The same update as [`update`], to the bit for finite input (zeros may
+/// differ in sign): the Joseph form written out entry by entry in the
+/// order nalgebra's products sum it, so the engine's hot path avoids the
+/// generic matrix products. [`update`] stays the reference the filterpy
+/// checks pin; the tests hold the two together.
+pub fn update_fast(g: &Gaussian, z: &Vector2<f64>, r: &Matrix2<f64>) -> Option<(Gaussian, Innovation)> {
+    let inn = innovation(g, z, r)?;
+    let p = g.p.as_slice();
+    let si = &inn.s_inv;
+    // Column-major 5×5: entry (i, j) at i + 5 j.
+    let at = |m: &[f64], i: usize, j: usize| m[i + 5 * j];
+    // K = P[:, 0..2] S⁻¹.
+    let mut k = [[0.0; 2]; 5];
+    for (i, ki) in k.iter_mut().enumerate() {
+        for (c, kic) in ki.iter_mut().enumerate() {
+            *kic = si[(0, c)] * at(p, i, 0) + si[(1, c)] * at(p, i, 1);
+        }
+    }
+    let mut x = g.x;
+    for (i, xi) in x.iter_mut().enumerate() {
+        *xi += inn.nu[0] * k[i][0] + inn.nu[1] * k[i][1];
+    }
+    let r01 = (r[(0, 1)] + r[(1, 0)]) * 0.5;
+    let r = [[r[(0, 0)], r01], [r01, r[(1, 1)]]];
+    // A = P − K P[0..2, :], B = A − A[:, 0..2] Kᵀ, and K R (5×2).
+    let mut a = [0.0; 25];
+    for j in 0..5 {
+        for i in 0..5 {
+            a[i + 5 * j] = at(p, i, j) - (at(p, 0, j) * k[i][0] + at(p, 1, j) * k[i][1]);
+        }
+    }
+    let mut kr = [[0.0; 2]; 5];
+    for (i, kri) in kr.iter_mut().enumerate() {
+        for (c, v) in kri.iter_mut().enumerate() {
+            *v = r[0][c] * k[i][0] + r[1][c] * k[i][1];
+        }
+    }
+    let full = |i: usize, j: usize| {
+        let b = a[i + 5 * j] - (k[j][0] * a[i] + k[j][1] * a[i + 5]);
+        b + (k[j][0] * kr[i][0] + k[j][1] * kr[i][1])
+    };
+    let mut out = StateCov::zeros();
+    for i in 0..5 {
+        // (v + v)·0.5 is v exactly.
+        out[(i, i)] = full(i, i);
+        for j in i + 1..5 {
+            let v = (full(i, j) + full(j, i)) * 0.5;
+            out[(i, j)] = v;
+            out[(j, i)] = v;
+        }
+    }
+    // Every entry finite, without a branch per entry.
+    let finite = out.as_slice().iter().chain(x.as_slice()).fold(true, |ok, v| ok & v.is_finite());
+    if !finite {
+        return None;
+    }
+    Some((Gaussian { x, p: out }, inn))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -390,5 +575,83 @@ mod tests {
         assert_eq!((k.s, k.c, k.ds, k.dc), (dt, 0.0, 0.0, dt * dt / 2.0));
         let k = turn_coeffs(0.0, 0.0);
         assert_eq!((k.s, k.c, k.ds, k.dc), (0.0, 0.0, 0.0, 0.0));
+    }
+}
+
+#[cfg(test)]
+pub(crate) mod fast_path_tests {
+    //! The fast prediction against the reference one, on random states:
+    //! equal as numbers (`==`, so ±0 alike), entry by entry. The
+    //! reference is the path the filterpy and Kalata checks pin.
+    use super::*;
+    use rand::{Rng, SeedableRng};
+    use rand_chacha::ChaCha8Rng;
+
+    /// A random Gaussian with an exactly symmetric positive definite
+    /// covariance, as the filters keep them.
+    pub(crate) fn random_gaussian(rng: &mut ChaCha8Rng) -> Gaussian {
+        let mut a = StateCov::zeros();
+        for v in a.iter_mut() {
+            *v = rng.random_range(-30.0..30.0);
+        }
+        let p = a * a.transpose() + StateCov::identity() * 1e-3;
+        let mut x = StateVec::zeros();
+        for (i, v) in x.iter_mut().enumerate() {
+            *v = match i {
+                0 | 1 => rng.random_range(-20_000.0..20_000.0),
+                2 | 3 => rng.random_range(-15.0..15.0),
+                // Turn rates on both sides of the series threshold.
+                _ => rng.random_range(-0.12..0.12) * if rng.random::<bool>() { 1.0 } else { 0.01 },
+            };
+        }
+        Gaussian { x, p: symmetric(p) }
+    }
+
+    #[test]
+    fn fast_update_is_the_reference_update() {
+        let mut rng = ChaCha8Rng::seed_from_u64(0x0bda);
+        for trial in 0..20_000 {
+            let g = random_gaussian(&mut rng);
+            let z = Vector2::new(g.x[0] + rng.random_range(-200.0..200.0), g.x[1] + rng.random_range(-200.0..200.0));
+            let (a, b, c): (f64, f64, f64) = (rng.random_range(10.0..3000.0), rng.random_range(10.0..3000.0), rng.random_range(-0.9..0.9));
+            let off = c * (a * b).sqrt();
+            // Now and then a covariance off its symmetry by rounding.
+            let r = Matrix2::new(a, off, off * if trial % 3 == 0 { 1.0 + 1e-15 } else { 1.0 }, b);
+            let (want, wi) = update(&g, &z, &r).unwrap();
+            let (got, gi) = update_fast(&g, &z, &r).unwrap();
+            assert_eq!(wi, gi);
+            for (x, y) in got.x.iter().chain(got.p.iter()).zip(want.x.iter().chain(want.p.iter())) {
+                assert!(x == y, "trial {trial}: {x:e} vs {y:e}");
+            }
+        }
+    }
+
+    #[test]
+    fn fast_prediction_is_the_reference_prediction() {
+        let mut rng = ChaCha8Rng::seed_from_u64(0xfa57);
+        let models = [
+            Motion::ConstantVelocity { accel_psd: 0.02 },
+            Motion::CoordinatedTurn { accel_psd: 0.05, turn_psd: 1e-4 },
+            Motion::ConstantVelocity { accel_psd: 0.5 },
+        ];
+        for trial in 0..20_000 {
+            let g = random_gaussian(&mut rng);
+            let dt = match trial % 4 {
+                0 => 0.0,
+                1 => rng.random_range(0.0..0.05),
+                _ => rng.random_range(0.0..40.0),
+            };
+            for m in &models {
+                let want = m.predict(&g, dt);
+                let got = m.predict_fast(&g, dt);
+                for (a, b) in got.x.iter().chain(got.p.iter()).zip(want.x.iter().chain(want.p.iter())) {
+                    assert!(a == b, "trial {trial} {m:?} dt {dt}: {a:e} vs {b:e}");
+                }
+                let (x, p) = m.predict_position(&g, dt);
+                let want_p = [want.p[(0, 0)], want.p[(0, 1)], want.p[(1, 1)]];
+                assert!(x.iter().zip(want.x.iter()).all(|(a, b)| a == b), "trial {trial} {m:?}: {x:?}");
+                assert!(p.iter().zip(want_p.iter()).all(|(a, b)| a == b), "trial {trial} {m:?}: {p:?} vs {want_p:?}");
+            }
+        }
     }
 }

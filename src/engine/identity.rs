@@ -75,8 +75,8 @@ impl Engine {
                 continue;
             }
             let dt = r.time.secs_since(t.time).max(0.0);
-            let g = self.imm.combine(&if dt > 0.0 {
-                self.imm.predict(&t.state, dt)
+            let g = self.imm.combine_fast(&if dt > 0.0 {
+                self.imm.predict_fast(&t.state, dt)
             } else {
                 t.state
             });

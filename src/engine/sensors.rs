@@ -77,6 +77,15 @@ impl RadarGeometry {
         (Vector2::new(p.x, p.y), j * cov_h * j.transpose())
     }
 
+    /// The slant range of [`RadarGeometry::range_bearing_of`] alone, the
+    /// same number.
+    pub fn range_of(&self, en: &Vector2<f64>) -> f64 {
+        let de = en.x - self.offset.x;
+        let dn = en.y - self.offset.y;
+        let v = self.rot.transpose() * Vector3::new(de, dn, 0.0);
+        v.x.hypot(v.y).hypot(self.height_m)
+    }
+
     /// Slant range and bearing (rad) from the antenna to a site-plane
     /// surface point: the approximate inverse used for coverage tests.
     pub fn range_bearing_of(&self, en: &Vector2<f64>) -> (f64, f64) {
@@ -134,14 +143,15 @@ impl SensorModel {
     /// sector `[from, to]` (degrees, clockwise) is given, inside it.
     pub fn covers(&self, en: &Vector2<f64>, sector_deg: Option<[f64; 2]>) -> bool {
         let Some(radar) = &self.radar else { return false };
-        let (r, b) = radar.range_bearing_of(en);
-        if r > self.max_range_m {
+        // The range alone first: the bearing (an atan2) only matters for
+        // a sector.
+        if radar.range_of(en) > self.max_range_m {
             return false;
         }
         match sector_deg {
             None => true,
             Some([from, to]) => {
-                let b = b.to_degrees();
+                let b = radar.range_bearing_of(en).1.to_degrees();
                 let span = (to - from).rem_euclid(360.0);
                 let off = (b - from).rem_euclid(360.0);
                 // A zero span is read as the full circle (a north marker).

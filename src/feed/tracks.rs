@@ -7,7 +7,6 @@
 
 use crate::time::Timestamp;
 use serde::{Deserialize, Serialize};
-use std::fmt::Write;
 use std::sync::Arc;
 
 #[derive(Copy, Clone, Debug, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
@@ -88,47 +87,139 @@ pub fn speed_course(vel_east: f64, vel_north: f64) -> (f64, f64) {
     (speed, course)
 }
 
+/// Powers of ten up to 10⁹, for [`fixed`].
+const POW10: [u64; 10] = [1, 10, 100, 1_000, 10_000, 100_000, 1_000_000, 10_000_000, 100_000_000, 1_000_000_000];
+
 /// Writes `v` with `d` decimals (d ≤ 9), never as `-0.00`: the value is
-/// rounded to the nearest multiple of 10⁻ᵈ (ties away from zero) and
-/// written as integers, which is several times faster than float
-/// formatting on the output path.
-fn fixed(out: &mut String, v: f64, d: u32) {
-    let scale = 10u64.pow(d);
-    let scaled = (v * scale as f64).round();
-    if !scaled.is_finite() || scaled.abs() >= 9.0e15 {
-        let _ = write!(out, "{:.*}", d as usize, v);
+/// rounded to the nearest multiple of 10⁻ᵈ (ties away from zero, as
+/// `f64::round`) and written as integers, which is several times faster
+/// than float formatting on the output path.
+fn fixed(out: &mut Line<'_>, v: f64, d: u32) {
+    let d = d.min(9);
+    let scale = POW10[d as usize];
+    let x = v * scale as f64;
+    let a = x.abs();
+    // Below 9e15 < 2^53 the integer part and the fraction of `a` are
+    // exact, so rounding half away from zero is a comparison (and
+    // avoids a libm call: `round` has no instruction in baseline x86-64).
+    let mut n = if a < 9.0e15 { a as u64 } else { u64::MAX };
+    if n != u64::MAX && a - n as f64 >= 0.5 {
+        n += 1;
+    }
+    if n >= 9_000_000_000_000_000 {
+        // Huge or not finite.
+        out.push_str(&format!("{:.*}", d as usize, v));
         return;
     }
-    let neg = scaled < 0.0;
-    let a = scaled.abs() as u64;
-    if neg && a != 0 {
-        out.push('-');
+    let (mut int, mut frac) = (n / scale, n % scale);
+    let neg = x < 0.0 && n != 0;
+    let mut int_digits = 1;
+    while int_digits < 20 && int >= POW10_U64[int_digits] {
+        int_digits += 1;
     }
-    push_u64(out, a / scale, 1);
+    let width = neg as usize + int_digits + if d > 0 { 1 + d as usize } else { 0 };
+    // Right to left into a fixed buffer, the number left-aligned: the
+    // fraction, the point, the integer part, the sign. The whole buffer
+    // is appended and the tail cut off: a copy of constant size is a few
+    // vector moves, where a copy of the exact size is a `memcpy` call.
+    let mut buf = [b'0'; 32];
+    let mut i = width;
     if d > 0 {
-        out.push('.');
-        push_u64(out, a % scale, d as usize);
+        let mut k = d;
+        while k >= 2 {
+            i -= 2;
+            buf[i..i + 2].copy_from_slice(pair(frac % 100));
+            frac /= 100;
+            k -= 2;
+        }
+        if k == 1 {
+            i -= 1;
+            buf[i] = b'0' + (frac % 10) as u8;
+        }
+        i -= 1;
+        buf[i] = b'.';
     }
+    while int >= 100 {
+        i -= 2;
+        buf[i..i + 2].copy_from_slice(pair(int % 100));
+        int /= 100;
+    }
+    if int >= 10 {
+        i -= 2;
+        buf[i..i + 2].copy_from_slice(pair(int));
+    } else {
+        i -= 1;
+        buf[i] = b'0' + int as u8;
+    }
+    if neg {
+        buf[0] = b'-';
+    }
+    let end = out.0.len() + width;
+    out.0.extend_from_slice(&buf);
+    out.0.truncate(end);
 }
 
-/// Appends `s` as a JSON string (RFC 8259 escapes).
-fn push_json_str(out: &mut String, s: &str) {
+/// Powers of ten that fit a u64, for counting digits.
+const POW10_U64: [u64; 20] = {
+    let mut t = [1u64; 20];
+    let mut k = 1;
+    while k < 20 {
+        t[k] = t[k - 1] * 10;
+        k += 1;
+    }
+    t
+};
+
+/// The two decimal digits of `v` (< 100).
+fn pair(v: u64) -> &'static [u8] {
+    const PAIRS: [u8; 200] = {
+        let mut t = [0u8; 200];
+        let mut k = 0;
+        while k < 100 {
+            t[2 * k] = b'0' + (k / 10) as u8;
+            t[2 * k + 1] = b'0' + (k % 10) as u8;
+            k += 1;
+        }
+        t
+    };
+    let k = 2 * v as usize;
+    &PAIRS[k..k + 2]
+}
+
+/// `f64::round` (half away from zero) without the libm call.
+fn round_half_away(x: f64) -> f64 {
+    let a = x.abs();
+    if !(a < 4.0e15) {
+        return x.round();
+    }
+    let mut n = a as u64;
+    if a - n as f64 >= 0.5 {
+        n += 1;
+    }
+    (n as f64).copysign(x)
+}
+
+/// Appends `s` as a JSON string (RFC 8259 escapes). Bytes of multi-byte
+/// characters are all ≥ 0x80, so copying the others byte by byte keeps
+/// the text valid UTF-8.
+fn push_json_str(out: &mut Line<'_>, s: &str) {
     out.push('"');
-    for c in s.chars() {
-        match c {
-            '"' => out.push_str("\\\""),
-            '\\' => out.push_str("\\\\"),
-            c if (c as u32) < 0x20 => {
-                let _ = write!(out, "\\u{:04x}", c as u32);
+    for &b in s.as_bytes() {
+        match b {
+            b'"' => out.push_str("\\\""),
+            b'\\' => out.push_str("\\\\"),
+            b if b < 0x20 => {
+                const HEX: &[u8; 16] = b"0123456789abcdef";
+                out.push_ascii(&[b'\\', b'u', b'0', b'0', HEX[(b >> 4) as usize], HEX[(b & 15) as usize]]);
             }
-            c => out.push(c),
+            b => out.0.push(b),
         }
     }
     out.push('"');
 }
 
 /// Appends `v` in decimal with at least `width` digits (zero padded).
-fn push_u64(out: &mut String, mut v: u64, width: usize) {
+fn push_u64(out: &mut Line<'_>, mut v: u64, width: usize) {
     let mut buf = [b'0'; 20];
     let mut i = buf.len();
     while v > 0 {
@@ -137,15 +228,48 @@ fn push_u64(out: &mut String, mut v: u64, width: usize) {
         v /= 10;
     }
     let start = (buf.len() - width.min(20)).min(i);
-    // The buffer holds ASCII digits only.
-    out.push_str(std::str::from_utf8(&buf[start..]).unwrap_or("0"));
+    out.push_ascii(&buf[start..]);
+}
+
+/// The byte buffer a track line is written into, with `String`'s
+/// `push_str` and `push` so that the encoder reads as text. Only whole
+/// UTF-8 text and ASCII go in.
+struct Line<'a>(&'a mut Vec<u8>);
+
+impl Line<'_> {
+    fn push_str(&mut self, s: &str) {
+        self.0.extend_from_slice(s.as_bytes());
+    }
+    fn push(&mut self, c: char) {
+        let mut b = [0; 4];
+        self.0.extend_from_slice(c.encode_utf8(&mut b).as_bytes());
+    }
+    /// Digits and signs: byte by byte, which beats a `memcpy` call for a
+    /// few bytes.
+    fn push_ascii(&mut self, b: &[u8]) {
+        self.0.reserve(b.len());
+        for &c in b {
+            self.0.push(c);
+        }
+    }
 }
 
 impl TrackRecord {
     /// Appends the JSON line (without the newline).
     pub fn write_json(&self, out: &mut String) {
+        let mut line = Vec::with_capacity(400);
+        self.write_json_bytes(&mut line);
+        // The encoder writes only ASCII and whole strings from `self`.
+        out.push_str(std::str::from_utf8(&line).unwrap_or_default());
+    }
+
+    /// Appends the JSON line (without the newline) as UTF-8 bytes: the
+    /// output path of `skerry track`, with no check or copy per line.
+    pub fn write_json_bytes(&self, out: &mut Vec<u8>) {
+        out.reserve(400);
+        let out = &mut Line(out);
         out.push_str("{\"type\":\"track\",\"time\":\"");
-        self.time.write_rfc3339(out);
+        self.time.write_rfc3339_bytes(out.0);
         out.push_str("\",\"track\":");
         push_u64(out, self.track, 1);
         out.push_str(",\"status\":\"");
@@ -166,7 +290,7 @@ impl TrackRecord {
         fixed(out, self.speed_kn, 2);
         out.push_str(",\"course_deg\":");
         // Rounding may carry 359.995 up to 360.00: keep the contract's [0, 360).
-        let c = (self.course_deg * 100.0).round() / 100.0;
+        let c = round_half_away(self.course_deg * 100.0) / 100.0;
         fixed(out, if c >= 360.0 { 0.0 } else { c }, 2);
         out.push_str(",\"pos_cov_m2\":[[");
         fixed(out, self.pos_cov_m2[0][0], 2);
@@ -286,6 +410,7 @@ impl TruthRecord {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use std::fmt::Write;
 
     #[test]
     fn track_line_round_trips_and_is_fixed_precision() {
@@ -317,8 +442,7 @@ mod tests {
         // Brute force against the standard formatter away from ties.
         for i in -2000..2000 {
             let v = i as f64 * 0.37 + 0.001;
-            let mut a = String::new();
-            fixed(&mut a, v, 2);
+            let a = fixed_string(v, 2);
             let b = format!("{:.2}", v);
             assert_eq!(a, if b == "-0.00" { "0.00".to_string() } else { b });
         }
@@ -344,6 +468,82 @@ mod tests {
         assert_eq!((back.name, back.ship_type, back.length_m, back.beam_m), (named.name.clone(), Some(52), Some(31.0), Some(9.3)));
         let only_type = TrackRecord { ship_type: Some(0), ..r.clone() }.to_json();
         assert_eq!(only_type, format!("{},\"ship_type\":0}}", &s[..s.len() - 1]));
+    }
+
+    fn fixed_string(v: f64, d: u32) -> String {
+        let mut b = Vec::new();
+        fixed(&mut Line(&mut b), v, d);
+        String::from_utf8(b).unwrap()
+    }
+
+    /// The fixed-decimal writer as it was first written, through
+    /// `f64::round`: the reference for the faster one.
+    fn fixed_reference(out: &mut String, v: f64, d: u32) {
+        let scale = 10u64.pow(d);
+        let scaled = (v * scale as f64).round();
+        if !scaled.is_finite() || scaled.abs() >= 9.0e15 {
+            let _ = write!(out, "{:.*}", d as usize, v);
+            return;
+        }
+        let neg = scaled < 0.0;
+        let a = scaled.abs() as u64;
+        if neg && a != 0 {
+            out.push('-');
+        }
+        let _ = write!(out, "{}", a / scale);
+        if d > 0 {
+            let _ = write!(out, ".{:0w$}", a % scale, w = d as usize);
+        }
+    }
+
+    #[test]
+    fn fixed_matches_its_reference_to_the_byte() {
+        // Random values of every magnitude, exact ties (k + 0.5 at the
+        // scale), signed zeros, tiny negatives, the 9e15 switch-over and
+        // non-finite values, at every decimal count.
+        let mut x: u64 = 0x2545_f491_4f6c_dd1d;
+        let mut next = || {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            x
+        };
+        let mut cases = vec![0.0, -0.0, -0.004, 0.005, -0.005, 0.015, 2.675, 1e300, -1e300, f64::NAN, f64::INFINITY, f64::NEG_INFINITY, 8.999_999_999_999_99e15, 9.0e15, 4503599627370495.5, 0.49999999999999994];
+        for _ in 0..50_000 {
+            let r = next();
+            let mant = (r >> 11) as f64 / (1u64 << 53) as f64;
+            let exp = (r % 40) as i32 - 12;
+            let sign = if r & 1 == 0 { 1.0 } else { -1.0 };
+            cases.push(sign * mant * 10f64.powi(exp));
+            let d = (r >> 8) % 10;
+            cases.push(sign * ((r >> 20) % 1_000_000) as f64 / 10f64.powi(d as i32) + sign * 0.5 / 10f64.powi(d as i32));
+        }
+        for (k, &v) in cases.iter().enumerate() {
+            for d in 0..=9 {
+                let (a, mut b) = (fixed_string(v, d), String::new());
+                fixed_reference(&mut b, v, d);
+                assert_eq!(a, b, "case {k}: {v:e} with {d} decimals");
+            }
+            assert_eq!(round_half_away(v * 100.0).to_bits(), (v * 100.0).round().to_bits(), "{v:e}");
+        }
+    }
+
+    #[test]
+    fn long_strings_and_huge_numbers() {
+        // Long strings, many sensors, numbers past the integer path.
+        let mut r = TrackRecord::from_json(r#"{"type":"track","time":"2026-05-14T06:00:02Z","track":1,"status":"tentative","lat_deg":56.0,"lon_deg":7.0,"east_m":0.0,"north_m":0.0,"vel_east_mps":0.0,"vel_north_mps":0.0,"speed_kn":0.0,"course_deg":0.0,"pos_cov_m2":[[1.0,0.0],[0.0,1.0]],"sensors":[],"identity":null}"#).unwrap().unwrap();
+        r.identity = Some("é\"x".repeat(300).into());
+        r.sensors = (0..40).map(|i| Arc::<str>::from(format!("sensor-{i}-{}", "n".repeat(i * 7)))).collect();
+        r.pos_cov_m2[0][0] = 1.5e300;
+        r.east_m = -2.5e17;
+        let back = TrackRecord::from_json(&r.to_json()).unwrap().unwrap();
+        assert_eq!(back.identity, r.identity);
+        assert_eq!(back.sensors, r.sensors);
+        assert_eq!(back.pos_cov_m2[0][0], 1.5e300);
+        assert_eq!(back.east_m, -2.5e17);
+        let mut bytes = Vec::new();
+        r.write_json_bytes(&mut bytes);
+        assert_eq!(String::from_utf8(bytes).unwrap(), r.to_json());
     }
 
     #[test]
