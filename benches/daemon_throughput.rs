@@ -18,6 +18,10 @@ use daemon_support::*;
 use skerry::daemon::replay::{self, Pace, Target};
 use skerry::engine::Engine;
 use skerry::time::Timestamp;
+use skerry::daemon::Tracker;
+use skerry::feed::{Record, SensorTable, TrackRecord};
+use std::collections::HashMap;
+use std::sync::{Arc, Mutex};
 use std::time::{Duration, Instant, SystemTime, UNIX_EPOCH};
 
 fn now_ts() -> Timestamp {
@@ -111,92 +115,297 @@ async fn daemon_receive(lines: &[String], rate: f64) -> (f64, f64, String) {
     (received, at, drops)
 }
 
-async fn latency(rate: f64, secs: f64, window: &str) -> (usize, u64, f64, f64, f64) {
-    let cfg = config(&[("SKERRY__SERVE__REORDER_WINDOW_S", window)]);
-    let d = start(cfg, Echo::default()).await;
+/// A tracker wrapped to time each stage inside the daemon: when a plot
+/// reaches the engine task (`handle`), and when each track record leaves
+/// the tracker (to the publisher), both on the wall clock.
+struct Stamped<T> {
+    inner: T,
+    stamps: Arc<Mutex<Stamps>>,
+}
+
+#[derive(Default)]
+struct Stamps {
+    /// Wall clock minus plot time when the plot was handed to the tracker (s).
+    at_engine: Vec<f64>,
+    /// (track, record time) → wall clock (ns) when the tracker emitted it.
+    emitted: HashMap<(u64, i64), i64>,
+}
+
+fn wall_ns() -> i64 {
+    SystemTime::now().duration_since(UNIX_EPOCH).unwrap().as_nanos() as i64
+}
+
+impl<T: Tracker> Stamped<T> {
+    fn note(&self, out: &[TrackRecord]) {
+        if out.is_empty() {
+            return;
+        }
+        let now = wall_ns();
+        let mut s = self.stamps.lock().unwrap();
+        for r in out {
+            s.emitted.entry((r.track, r.time.unix_nanos())).or_insert(now);
+        }
+    }
+}
+
+impl<T: Tracker> Tracker for Stamped<T> {
+    fn handle(&mut self, rec: &Record, out: &mut Vec<TrackRecord>) {
+        if let Record::Detection(d) = rec {
+            let age = (wall_ns() - d.time.unix_nanos()) as f64 * 1e-9;
+            self.stamps.lock().unwrap().at_engine.push(age);
+        }
+        let n = out.len();
+        self.inner.handle(rec, out);
+        self.note(&out[n..]);
+    }
+    fn advance(&mut self, now: Timestamp, out: &mut Vec<TrackRecord>) {
+        let n = out.len();
+        self.inner.advance(now, out);
+        self.note(&out[n..]);
+    }
+    fn finish(&mut self, out: &mut Vec<TrackRecord>) {
+        let n = out.len();
+        self.inner.finish(out);
+        self.note(&out[n..]);
+    }
+    fn picture(&self) -> Vec<TrackRecord> {
+        self.inner.picture()
+    }
+    fn live(&self) -> [u64; 3] {
+        self.inner.live()
+    }
+}
+
+/// Quantiles (p50, p99, p99.9, max) of a sample, in ms.
+fn quantiles(v: &mut [f64]) -> [f64; 4] {
+    v.sort_by(f64::total_cmp);
+    let q = |p: f64| v.get(((v.len() as f64 * p) as usize).min(v.len().saturating_sub(1))).copied().unwrap_or(f64::NAN) * 1e3;
+    [q(0.5), q(0.99), q(0.999), v.last().copied().unwrap_or(f64::NAN) * 1e3]
+}
+
+fn fmt_q(name: &str, v: &mut [f64]) -> String {
+    let [a, b, c, d] = quantiles(v);
+    format!("  {name:<34} n {:>7}  p50 {a:>8.2}  p99 {b:>8.2}  p99.9 {c:>8.2}  max {d:>8.2} ms", v.len())
+}
+
+/// What a latency run sends: the Echo pipeline with plots stamped at the
+/// sending instant, or a live radar scene for the real engine.
+enum Load {
+    /// `rate` plots/s in 1 ms datagrams, each stamped when sent.
+    Stamped { rate: f64 },
+    /// A schedule of records (offset from the start, s) re-stamped to the
+    /// wall clock and sent when their time comes.
+    Scene { records: Vec<Record>, table: SensorTable },
+}
+
+/// Sends the load for `secs` and returns the number of plots sent.
+async fn send_load(load: &Load, secs: f64, udp: std::net::SocketAddr) -> usize {
+    let sock = tokio::net::UdpSocket::bind("127.0.0.1:0").await.unwrap();
+    let start = Instant::now();
+    let start_wall = now_ts();
+    let mut tick = tokio::time::interval(Duration::from_millis(1));
+    tick.set_missed_tick_behavior(tokio::time::MissedTickBehavior::Burst);
+    let mut sent = 0usize;
+    match load {
+        Load::Stamped { rate } => {
+            let per_tick = (rate / 1000.0).round() as usize;
+            while start.elapsed().as_secs_f64() < secs {
+                tick.tick().await;
+                let t = now_ts();
+                let mut dgram = String::new();
+                for _ in 0..per_tick {
+                    if !dgram.is_empty() {
+                        dgram.push('\n');
+                    }
+                    let i = sent;
+                    dgram.push_str(&format!(r#"{{"type":"detection","sensor":"kestrel-point","time":"{}","range_m":{:.1},"bearing_deg":{:.2}}}"#, t.to_rfc3339(), 1000.0 + i as f64 % 9000.0, (i % 3600) as f64 * 0.1));
+                    sent += 1;
+                }
+                sock.send_to(dgram.as_bytes(), udp).await.unwrap();
+            }
+        }
+        Load::Scene { records, table } => {
+            let t0 = records[0].time();
+            let mut k = 0;
+            let mut dgram = String::new();
+            let mut line = String::new();
+            while k < records.len() && start.elapsed().as_secs_f64() < secs {
+                tick.tick().await;
+                let el = start.elapsed().as_secs_f64();
+                while k < records.len() && records[k].time().secs_since(t0) <= el {
+                    let mut r = records[k].clone();
+                    let t = start_wall.plus_secs(r.time().secs_since(t0));
+                    match &mut r {
+                        Record::Detection(d) => {
+                            d.time = t;
+                            sent += 1;
+                        }
+                        Record::ScanEnd(s) => s.time = t,
+                        Record::Report(p) => p.time = t,
+                    }
+                    line.clear();
+                    skerry::feed::encode_record(&r, table, None, &mut line);
+                    if dgram.len() + line.len() + 1 > 3800 {
+                        sock.send_to(dgram.as_bytes(), udp).await.unwrap();
+                        dgram.clear();
+                    }
+                    if !dgram.is_empty() {
+                        dgram.push('\n');
+                    }
+                    dgram.push_str(&line);
+                    k += 1;
+                }
+                if !dgram.is_empty() {
+                    sock.send_to(dgram.as_bytes(), udp).await.unwrap();
+                    dgram.clear();
+                }
+            }
+        }
+    }
+    sent
+}
+
+/// One latency run: the daemon with `tracker` (wrapped in [`Stamped`]) and
+/// the `[serve]` overrides, the load sent for `secs`; prints the stages.
+async fn latency<T: Tracker>(label: &str, overrides: &[(&str, &str)], tracker: T, load: &Load, secs: f64) {
+    let cfg = config(overrides);
+    let window = cfg.serve.reorder_window_s;
+    let stamps = Arc::new(Mutex::new(Stamps::default()));
+    let d = start(cfg, Stamped { inner: tracker, stamps: stamps.clone() }).await;
     let mut sub = subscribe(d.addrs.grpc, true).await;
+    let st = stamps.clone();
     let collector = tokio::spawn(async move {
-        let mut lat = Vec::new();
+        // (age at the subscriber, subscriber minus emission), seconds.
+        let mut age = Vec::new();
+        let mut hop = Vec::new();
         let mut skipped = 0;
         while let Ok(Some(m)) = sub.message().await {
             match m.update {
                 Some(skerry::daemon::proto::v1::picture_update::Update::Track(t)) => {
-                    let sent = Timestamp::parse_rfc3339(&t.time).unwrap();
-                    lat.push(now_ts().secs_since(sent));
+                    let now = wall_ns();
+                    let time = Timestamp::parse_rfc3339(&t.time).unwrap();
+                    age.push((now - time.unix_nanos()) as f64 * 1e-9);
+                    if let Some(e) = st.lock().unwrap().emitted.get(&(t.track, time.unix_nanos())) {
+                        hop.push((now - e) as f64 * 1e-9);
+                    }
                 }
                 Some(skerry::daemon::proto::v1::picture_update::Update::Skipped(n)) => skipped += n.updates,
                 _ => {}
             }
         }
-        (lat, skipped)
+        (age, hop, skipped)
     });
-    let sock = tokio::net::UdpSocket::bind("127.0.0.1:0").await.unwrap();
-    // 1 ms ticks, rate/1000 plots per datagram, each timed at its sending.
-    let per_tick = (rate / 1000.0).round() as usize;
-    let start = Instant::now();
-    let mut tick = tokio::time::interval(Duration::from_millis(1));
-    let mut i = 0usize;
-    while start.elapsed().as_secs_f64() < secs {
-        tick.tick().await;
-        let t = now_ts();
-        let mut dgram = String::new();
-        for _ in 0..per_tick {
-            if !dgram.is_empty() {
-                dgram.push('\n');
-            }
-            dgram.push_str(&format!(r#"{{"type":"detection","sensor":"kestrel-point","time":"{}","range_m":{:.1},"bearing_deg":{:.2}}}"#, t.to_rfc3339(), 1000.0 + i as f64 % 9000.0, (i % 3600) as f64 * 0.1));
-            i += 1;
-        }
-        sock.send_to(dgram.as_bytes(), d.addrs.udp).await.unwrap();
+    let sent = send_load(load, secs, d.addrs.udp).await;
+    tokio::time::sleep(Duration::from_secs_f64(window * 2.0 + 0.5)).await;
+    let m = metrics(d.addrs.http).await;
+    let summary = d.stop().await;
+    let (age, mut hop, skipped) = collector.await.unwrap();
+    let s = stamps.lock().unwrap();
+    let mut at_engine: Vec<f64> = s.at_engine.iter().map(|a| a - window).collect();
+    let mut beyond: Vec<f64> = age.iter().map(|a| a - window).collect();
+    let mut emitted_age: Vec<f64> = s.emitted.iter().map(|(&(_, t), &w)| (w - t) as f64 * 1e-9 - window).collect();
+    println!("{label}: {sent} plots sent, {} processed, {} track records at the subscriber ({skipped} skipped); batch time p99 from /metrics: {}", summary.processed, age.len(), batch_p99(&m));
+    println!("{}", fmt_q("datagram → engine task, − window", &mut at_engine));
+    println!("{}", fmt_q("datagram → tracker output, − window", &mut emitted_age));
+    println!("{}", fmt_q("tracker output → subscriber", &mut hop));
+    println!("{}", fmt_q("datagram → subscriber, − window", &mut beyond));
+}
+
+/// The 0.99 quantile of the batch-time histogram, from its buckets.
+fn batch_p99(m: &str) -> String {
+    let mut buckets: Vec<(f64, f64)> = m
+        .lines()
+        .filter(|l| l.starts_with("skerry_batch_seconds_bucket{"))
+        .filter_map(|l| {
+            let le = l.split("le=\"").nth(1)?.split('"').next()?;
+            let le = if le == "+Inf" { f64::INFINITY } else { le.parse().ok()? };
+            Some((le, l.rsplit(' ').next()?.parse().ok()?))
+        })
+        .collect();
+    buckets.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let Some(&(_, total)) = buckets.last() else { return "n/a".into() };
+    match buckets.iter().find(|(_, c)| *c >= 0.99 * total) {
+        Some((le, _)) => format!("≤ {} ms", le * 1e3),
+        None => "n/a".into(),
     }
-    tokio::time::sleep(Duration::from_secs_f64(window.parse::<f64>().unwrap() * 2.0 + 0.5)).await;
-    d.stop().await;
-    let (mut lat, skipped) = collector.await.unwrap();
-    lat.sort_by(f64::total_cmp);
-    let q = |p: f64| lat.get(((lat.len() as f64 * p) as usize).min(lat.len().saturating_sub(1))).copied().unwrap_or(f64::NAN);
-    (lat.len(), skipped, q(0.5), q(0.99), q(0.999))
 }
 
 fn main() {
     // `cargo bench` passes --bench; `cargo test --benches` passes nothing
-    // we need: run a quick smoke version then.
-    let quick = !std::env::args().any(|a| a == "--bench");
+    // we need: run a quick smoke version then. Other arguments choose the
+    // parts to run: `throughput`, `latency`, `memory` (default: all).
+    let args: Vec<String> = std::env::args().skip(1).collect();
+    let quick = !args.iter().any(|a| a == "--bench");
+    let parts: Vec<&str> = args.iter().map(String::as_str).filter(|a| !a.starts_with('-')).collect();
+    let want = |p: &str| parts.is_empty() || parts.contains(&p);
     let rt = tokio::runtime::Builder::new_multi_thread().worker_threads(2).enable_all().build().unwrap();
     rt.block_on(async {
-        let n = if quick { 20_000 } else { 1_000_000 };
-        let lines = plot_lines(n, Timestamp::parse_rfc3339("2026-05-14T06:00:00Z").unwrap());
-        for rate in [100_000.0, 200_000.0] {
-            let (got, secs) = bare_receive(&lines, rate).await;
-            println!("bare UDP loop, offered {rate:.0}/s: received {got} of {} lines in {secs:.2} s ({:.0} lines/s)", lines.len(), got as f64 / secs.max(1e-9));
-            let (got, secs, drops) = daemon_receive(&lines, rate).await;
-            println!("daemon UDP ingest, offered {rate:.0}/s: received {got:.0} of {} records in {secs:.2} s ({:.0} records/s); {drops}", lines.len(), got / secs.max(1e-9));
+        if want("throughput") {
+            throughput(quick).await;
         }
-        let secs = if quick { 1.0 } else { 5.0 };
-        for window in ["1.0", "0.05"] {
-            let (k, skipped, p50, p99, p999) = latency(20_000.0, secs, window).await;
-            println!("latency send → subscriber at 20000 plots/s, reorder window {window} s: {k} records ({skipped} skipped), p50 {:.1} ms, p99 {:.1} ms, p99.9 {:.1} ms", p50 * 1e3, p99 * 1e3, p999 * 1e3);
+        if want("latency") {
+            latency_all(quick).await;
         }
-        let n = if quick { 50_000 } else { 2_000_000 };
-        let lines = plot_lines(n, Timestamp::parse_rfc3339("2026-05-14T06:00:00Z").unwrap());
-        let cfg = config(&[]);
-        let d = start(cfg.clone(), Engine::new(&cfg).unwrap()).await;
-        let udp = d.addrs.udp.to_string();
-        let before = rss_kib();
-        let sender = tokio::spawn(async move { replay::replay(&lines, &Target::Udp(udp), &Pace { speed: 0.0, max_rate: 150_000.0, ..Pace::default() }, &indicatif::ProgressBar::hidden()).await.unwrap() });
-        let mut samples = Vec::new();
-        while !sender.is_finished() {
-            tokio::time::sleep(Duration::from_secs(1)).await;
-            samples.push(rss_kib());
+        if want("memory") {
+            memory(quick).await;
         }
-        let rep = sender.await.unwrap();
-        let s = d.stop().await;
-        println!(
-            "resident memory over a replay of {} records in {:.1} s: before {} MiB, each second {:?} MiB; processed {}",
-            rep.records,
-            rep.seconds,
-            before / 1024,
-            samples.iter().map(|k| k / 1024).collect::<Vec<_>>(),
-            s.processed
-        );
     });
+}
+
+async fn throughput(quick: bool) {
+    let n = if quick { 20_000 } else { 1_000_000 };
+    let lines = plot_lines(n, Timestamp::parse_rfc3339("2026-05-14T06:00:00Z").unwrap());
+    for rate in [100_000.0, 200_000.0] {
+        let (got, secs) = bare_receive(&lines, rate).await;
+        println!("bare UDP loop, offered {rate:.0}/s: received {got} of {} lines in {secs:.2} s ({:.0} lines/s)", lines.len(), got as f64 / secs.max(1e-9));
+        let (got, secs, drops) = daemon_receive(&lines, rate).await;
+        println!("daemon UDP ingest, offered {rate:.0}/s: received {got:.0} of {} records in {secs:.2} s ({:.0} records/s); {drops}", lines.len(), got / secs.max(1e-9));
+    }
+}
+
+/// Latency, stage by stage: the transport alone (Echo tracker) at
+/// 20 000 plots/s, then the real engine on a live radar scene.
+async fn latency_all(quick: bool) {
+    let secs = if quick { 1.0 } else { 5.0 };
+    let stamped = Load::Stamped { rate: 20_000.0 };
+    for window in ["1.0", "0.05"] {
+        latency(&format!("Echo tracker, 20000 plots/s, reorder window {window} s"), &[("SKERRY__SERVE__REORDER_WINDOW_S", window)], Echo::default(), &stamped, secs).await;
+    }
+    // A live radar: `n` vessels seen every 2.5 s scan, each plot sent at
+    // its beam time, each scan closed by a scan_end.
+    let n: usize = std::env::var("LATENCY_VESSELS").ok().and_then(|v| v.parse().ok()).unwrap_or(if quick { 200 } else { 2000 });
+    let scene_secs: f64 = if quick { 6.0 } else { 30.0 };
+    let cfg = config(&[]);
+    let scans = (scene_secs / 2.5).ceil() as u64 + 1;
+    let scene = Load::Scene { records: feed(&cfg, n, scans), table: cfg.sensor_table() };
+    for window in ["1.0", "0.05"] {
+        let ov = [("SKERRY__SERVE__REORDER_WINDOW_S", window)];
+        let c = config(&ov);
+        latency(&format!("engine (GNN), {n} vessels, {:.0} plots/s, reorder window {window} s", n as f64 / 2.5), &ov, Engine::new(&c).unwrap(), &scene, scene_secs).await;
+    }
+}
+
+async fn memory(quick: bool) {
+    let n = if quick { 50_000 } else { 2_000_000 };
+    let lines = plot_lines(n, Timestamp::parse_rfc3339("2026-05-14T06:00:00Z").unwrap());
+    let cfg = config(&[]);
+    let d = start(cfg.clone(), Engine::new(&cfg).unwrap()).await;
+    let udp = d.addrs.udp.to_string();
+    let before = rss_kib();
+    let sender = tokio::spawn(async move { replay::replay(&lines, &Target::Udp(udp), &Pace { speed: 0.0, max_rate: 150_000.0, ..Pace::default() }, &indicatif::ProgressBar::hidden()).await.unwrap() });
+    let mut samples = Vec::new();
+    while !sender.is_finished() {
+        tokio::time::sleep(Duration::from_secs(1)).await;
+        samples.push(rss_kib());
+    }
+    let rep = sender.await.unwrap();
+    let s = d.stop().await;
+    println!(
+        "resident memory over a replay of {} records in {:.1} s: before {} MiB, each second {:?} MiB; processed {}",
+        rep.records,
+        rep.seconds,
+        before / 1024,
+        samples.iter().map(|k| k / 1024).collect::<Vec<_>>(),
+        s.processed
+    );
 }
