@@ -127,6 +127,8 @@ struct Stamped<T> {
 struct Stamps {
     /// Wall clock minus plot time when the plot was handed to the tracker (s).
     at_engine: Vec<f64>,
+    /// The plot times, in the order of `at_engine`.
+    plot_times: Vec<i64>,
     /// (track, record time) → wall clock (ns) when the tracker emitted it.
     emitted: HashMap<(u64, i64), i64>,
 }
@@ -152,7 +154,9 @@ impl<T: Tracker> Tracker for Stamped<T> {
     fn handle(&mut self, rec: &Record, out: &mut Vec<TrackRecord>) {
         if let Record::Detection(d) = rec {
             let age = (wall_ns() - d.time.unix_nanos()) as f64 * 1e-9;
-            self.stamps.lock().unwrap().at_engine.push(age);
+            let mut s = self.stamps.lock().unwrap();
+            s.at_engine.push(age);
+            s.plot_times.push(d.time.unix_nanos());
         }
         let n = out.len();
         self.inner.handle(rec, out);
@@ -301,6 +305,12 @@ async fn latency<T: Tracker>(label: &str, overrides: &[(&str, &str)], tracker: T
     let summary = d.stop().await;
     let (age, mut hop, skipped) = collector.await.unwrap();
     let s = stamps.lock().unwrap();
+    if let Ok(path) = std::env::var("LATENCY_DUMP") {
+        // Plot time (s from the first) and its age at the engine task, for a look.
+        let t0 = s.plot_times.first().copied().unwrap_or(0);
+        let text: String = s.plot_times.iter().zip(&s.at_engine).map(|(t, a)| format!("{:.6} {:.6}\n", (t - t0) as f64 * 1e-9, a - window)).collect();
+        std::fs::write(format!("{path}-{}.txt", label.chars().map(|c| if c.is_ascii_alphanumeric() { c } else { '_' }).collect::<String>()), text).unwrap();
+    }
     let mut at_engine: Vec<f64> = s.at_engine.iter().map(|a| a - window).collect();
     let mut beyond: Vec<f64> = age.iter().map(|a| a - window).collect();
     let mut emitted_age: Vec<f64> = s.emitted.iter().map(|(&(_, t), &w)| (w - t) as f64 * 1e-9 - window).collect();

@@ -16,7 +16,7 @@ use crate::time::Timestamp;
 use std::sync::Arc;
 use std::sync::atomic::Ordering::Relaxed;
 use std::time::Instant;
-use tokio::sync::{mpsc, oneshot};
+use tokio::sync::{mpsc, oneshot, watch};
 
 /// What the daemon needs of a tracking engine. [`Engine`] is the real
 /// one; tests may drive the daemon with another.
@@ -25,6 +25,13 @@ pub trait Tracker: Send + 'static {
     fn handle(&mut self, rec: &Record, out: &mut Vec<TrackRecord>);
     /// Feed time reached `now`: no record earlier than `now` follows.
     fn advance(&mut self, now: Timestamp, out: &mut Vec<TrackRecord>);
+    /// The earliest feed time at which `advance` would make or close
+    /// something (an open batch, a timeout check); `None`: nothing waits
+    /// on feed time. The reorder task releases up to it as soon as the
+    /// buffer allows, rather than at its next clock tick.
+    fn next_due(&self) -> Option<Timestamp> {
+        None
+    }
     /// End of the feed.
     fn finish(&mut self, out: &mut Vec<TrackRecord>);
     /// The latest record of every live track.
@@ -39,6 +46,9 @@ impl Tracker for Engine {
     }
     fn advance(&mut self, now: Timestamp, out: &mut Vec<TrackRecord>) {
         Engine::advance(self, now, out)
+    }
+    fn next_due(&self) -> Option<Timestamp> {
+        Engine::next_due(self)
     }
     fn finish(&mut self, out: &mut Vec<TrackRecord>) {
         Engine::finish(self, out)
@@ -73,6 +83,9 @@ pub struct EngineTask<T: Tracker> {
     pub control: mpsc::Receiver<Control>,
     pub publisher: Publisher,
     pub metrics: Arc<Metrics>,
+    /// The tracker's [`Tracker::next_due`] after each batch, for the
+    /// reorder task.
+    pub due: watch::Sender<Option<Timestamp>>,
 }
 
 impl<T: Tracker> EngineTask<T> {
@@ -103,6 +116,8 @@ impl<T: Tracker> EngineTask<T> {
         self.metrics.track_records.fetch_add(out.len() as u64, Relaxed);
         self.publisher.publish(out);
         out.clear();
+        let due = self.tracker.next_due();
+        self.due.send_if_modified(|d| std::mem::replace(d, due) != due);
         let live = self.tracker.live();
         for (g, v) in self.metrics.tracks.iter().zip(live) {
             g.store(v, Relaxed);

@@ -263,6 +263,10 @@ pub async fn run_with<T: Tracker>(cfg: Config, listeners: Listeners, shutdown: C
     // Reorder → engine: bounded; the reorder task waits on it, which backs
     // up into the ingest queue when the engine falls behind.
     let (batch_tx, batch_rx) = mpsc::channel(s.engine_queue);
+    // Engine → reorder: the feed time the engine waits for, so that the
+    // reorder task releases up to it on time (a watch: only the latest
+    // value matters).
+    let (due_tx, due_rx) = tokio::sync::watch::channel(None);
     // Subscription requests to the engine task, which owns the picture.
     let (control_tx, control_rx) = mpsc::channel(64);
     // The engine task is done: the servers may close.
@@ -285,8 +289,8 @@ pub async fn run_with<T: Tracker>(cfg: Config, listeners: Listeners, shutdown: C
     ingest_tasks.spawn(ingest::udp_task(ctx.clone(), listeners.udp));
     ingest_tasks.close();
 
-    // The reorder task ticks often enough to release a quiet feed close
-    // to when it is due, and no more than 100 times a second.
+    // The reorder task wakes when a release is due; this tick is only its
+    // backstop (see sequencer.rs), at most 100 times a second.
     let tick = Duration::from_secs_f64((s.reorder_window_s / 10.0).clamp(0.01, 0.1));
     tasks.spawn(
         Sequencer {
@@ -296,6 +300,7 @@ pub async fn run_with<T: Tracker>(cfg: Config, listeners: Listeners, shutdown: C
             metrics: metrics.clone(),
             clock,
             tick,
+            engine_due: due_rx,
             cancel: shutdown.clone(),
             ingest: ingest_tasks.clone(),
         }
@@ -310,6 +315,7 @@ pub async fn run_with<T: Tracker>(cfg: Config, listeners: Listeners, shutdown: C
             control: control_rx,
             publisher: Publisher::new(s.subscriber_queue, s.max_subscribers, Some(metrics.clone())),
             metrics: metrics.clone(),
+            due: due_tx,
         }
         .run(),
     );
@@ -326,7 +332,14 @@ pub async fn run_with<T: Tracker>(cfg: Config, listeners: Listeners, shutdown: C
         .add_service(v1::monitor_server::MonitorServer::new(grpc::MonitorService { metrics: metrics.clone(), clock, interval_s: s.health_interval_s, cancel: shutdown.clone() }))
         .add_service(health_service)
         .add_service(reflection)
-        .serve_with_incoming_shutdown(tonic::transport::server::TcpIncoming::from(listeners.grpc), drained.clone().cancelled_owned());
+        .serve_with_incoming_shutdown(
+            // Nagle's algorithm off: a picture update is a small write that
+            // must leave at once, not wait for the client's delayed ACK
+            // (tens of ms). Given our own listener, tonic leaves the
+            // socket option unset unless asked.
+            tonic::transport::server::TcpIncoming::from(listeners.grpc).with_nodelay(Some(true)),
+            drained.clone().cancelled_owned(),
+        );
     let flush = Duration::from_secs_f64(s.shutdown_flush_s);
     let flush_deadline = drained.clone();
     let grpc_task = tokio::spawn(async move {

@@ -340,6 +340,21 @@ impl Engine {
         self.sweep_until(now, out);
     }
 
+    /// The earliest feed time `t` at which [`Engine::advance`]`(t)` has
+    /// work to do: just past the open batch's span (it closes then), or
+    /// else the next whole second of the timeout checks. A live driver
+    /// can advance the engine as soon as its feed reaches that time
+    /// instead of polling; the result is the same either way.
+    pub fn next_due(&self) -> Option<Timestamp> {
+        if !self.batch.plots.is_empty() {
+            // advance closes once `now - first > span` in seconds: one
+            // nanosecond past the span, rounded up.
+            let span_ns = (self.batch_span(self.batch.sensor) * 1e9).ceil() as i64;
+            return Some(Timestamp::from_unix_nanos(self.batch.first.unix_nanos() + span_ns + 1));
+        }
+        self.next_sweep
+    }
+
     /// End of the feed: process everything held back.
     pub fn finish(&mut self, out: &mut Vec<TrackRecord>) {
         if !self.batch.plots.is_empty() {
