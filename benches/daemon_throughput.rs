@@ -378,7 +378,9 @@ async fn throughput(quick: bool) {
 async fn latency_all(quick: bool) {
     let secs = if quick { 1.0 } else { 5.0 };
     let stamped = Load::Stamped { rate: 20_000.0 };
-    for window in ["1.0", "0.05"] {
+    let windows: Vec<String> = std::env::var("LATENCY_WINDOWS").unwrap_or_else(|_| "1.0,0.05".into()).split(',').map(str::to_string).collect();
+    let windows: Vec<&str> = windows.iter().map(String::as_str).collect();
+    for &window in &windows {
         latency(&format!("Echo tracker, 20000 plots/s, reorder window {window} s"), &[("SKERRY__SERVE__REORDER_WINDOW_S", window)], Echo::default(), &stamped, secs).await;
     }
     // A live radar: `n` vessels seen every 2.5 s scan, each plot sent at
@@ -388,7 +390,10 @@ async fn latency_all(quick: bool) {
     let cfg = config(&[]);
     let scans = (scene_secs / 2.5).ceil() as u64 + 1;
     let scene = Load::Scene { records: feed(&cfg, n, scans), table: cfg.sensor_table() };
-    for window in ["1.0", "0.05"] {
+    if std::env::var("LATENCY_ECHO_ONLY").is_ok() {
+        return;
+    }
+    for &window in &windows {
         let ov = [("SKERRY__SERVE__REORDER_WINDOW_S", window)];
         let c = config(&ov);
         latency(&format!("engine (GNN), {n} vessels, {:.0} plots/s, reorder window {window} s", n as f64 / 2.5), &ov, Engine::new(&c).unwrap(), &scene, scene_secs).await;

@@ -46,6 +46,7 @@ use crate::config::{Config, ServeConfig};
 use crate::engine::{Engine, EngineError};
 use crate::feed::Screen;
 use crate::reorder::{Reorder, ReorderConfig};
+use crate::time::Timestamp;
 use clock::DaemonClock;
 use engine_task::EngineTask;
 use ingest::{AllowRange, IngestContext, IngestService, LogLimiter};
@@ -303,6 +304,7 @@ pub async fn run_with<T: Tracker>(cfg: Config, listeners: Listeners, shutdown: C
             engine_due: due_rx,
             cancel: shutdown.clone(),
             ingest: ingest_tasks.clone(),
+            last_pop: Timestamp::default(),
         }
         .run(),
     );

@@ -61,6 +61,8 @@ pub struct Sequencer {
     pub engine_due: watch::Receiver<Option<Timestamp>>,
     pub cancel: CancellationToken,
     pub ingest: TaskTracker,
+    /// The daemon instant of the latest `pop_due`.
+    pub last_pop: Timestamp,
 }
 
 impl Sequencer {
@@ -91,7 +93,8 @@ impl Sequencer {
     /// Sends what is due; false when the engine task is gone.
     async fn release(&mut self) -> bool {
         let mut records = Vec::new();
-        let release = self.reorder.pop_due(self.clock.now(), &mut records);
+        self.last_pop = self.clock.now();
+        let release = self.reorder.pop_due(self.last_pop, &mut records);
         self.gauges();
         if records.is_empty() && release.is_none() {
             return true;
@@ -108,9 +111,11 @@ impl Sequencer {
             (Some(a), Some(b)) => Some(a.min(b)),
             (a, b) => a.or(b),
         }?;
-        // An instant already past means the clock states changed since the
-        // last pop (due_at's caveat): the backstop tick takes over.
-        (wake > self.clock.now()).then_some(wake)
+        // An instant at or before the last pop, which did not get there,
+        // means the clock states changed (due_at's caveat): the backstop
+        // tick takes over. An instant merely past (the send to the engine
+        // took a while) is slept to at once.
+        (wake > self.last_pop).then_some(wake)
     }
 
     pub async fn run(mut self) {
