@@ -149,6 +149,16 @@ pub struct TrackingConfig {
     /// JPDA: clusters with more joint events than this use the
     /// approximation.
     pub jpda_max_events: u64,
+    /// JPDA: exact enumeration keeps only the most probable of the joint
+    /// events that differ by a permutation of the same plots among the
+    /// same tracks (JPDA*, against track coalescence); false: plain JPDA.
+    pub jpda_pruning: bool,
+    /// Plots of one radar are associated together while they lie within
+    /// this fraction of its scan period of the batch's first plot. Smaller
+    /// batches leave the engine sooner (a batch is held until feed time
+    /// passes its span) at some cost in joint association; 0 batches only
+    /// plots of the same time.
+    pub batch_scan_fraction: f64,
     /// A report whose identity a track holds must fall within this many
     /// metres of it, or it raises an identity conflict.
     pub identity_gate_m: f64,
@@ -470,6 +480,9 @@ impl Config {
         }
         if !(t.new_track_density_per_km2.is_finite() && t.new_track_density_per_km2 >= 0.0) {
             return bad("tracking.new_track_density_per_km2", "must be ≥ 0");
+        }
+        if !(t.batch_scan_fraction.is_finite() && (0.0..=0.5).contains(&t.batch_scan_fraction)) {
+            return bad("tracking.batch_scan_fraction", format!("must be in [0, 0.5] (got {})", t.batch_scan_fraction));
         }
         if t.model_sojourn_s.iter().any(|v| !(v.is_finite() && *v > 0.0)) {
             return bad("tracking.model_sojourn_s", "each must be a positive number of seconds");

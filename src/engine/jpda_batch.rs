@@ -209,10 +209,10 @@ pub(super) struct Jpda {
 }
 
 impl Jpda {
-    pub(super) fn new(max_events: u64) -> Self {
+    pub(super) fn new(max_events: u64, prune: bool) -> Self {
         Jpda {
             max_events,
-            prune: true,
+            prune,
             pregate: true,
             ..Default::default()
         }
@@ -229,9 +229,9 @@ fn find(parent: &mut [u32], mut a: u32) -> u32 {
 }
 
 impl Engine {
-    /// Chooses plain JPDA (`false`) or the JPDA* pruning (`true`, the
-    /// default) for exact enumeration. For experiments: the coalescence
-    /// comparison in tests/jpda_close_pass.rs.
+    /// Chooses plain JPDA (`false`) or the JPDA* pruning (`true`) for
+    /// exact enumeration, overriding `tracking.jpda_pruning` (the
+    /// coalescence comparison in tests/jpda_close_pass.rs uses both).
     pub fn set_jpda_pruning(&mut self, on: bool) {
         self.jpda.prune = on;
     }

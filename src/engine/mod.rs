@@ -14,7 +14,8 @@
 //!
 //! ## How a scan is processed
 //! Plots of one radar are gathered into small batches: consecutive plots of
-//! the same sensor within 1/16 of its scan period (a sector of about 22°).
+//! the same sensor within `tracking.batch_scan_fraction` of its scan
+//! period (default 1/16: a sector of about 22°).
 //! A batch closes when a record of another sensor or a later time arrives,
 //! on the sensor's `scan_end`, or when [`Engine::advance`] passes its end.
 //! Each batch is associated by global nearest neighbour: every plot is
@@ -96,8 +97,6 @@ const SECOND_CHANCE_SCALE: f64 = 4.0;
 /// fast boat's hard turn (common practice).
 const MAX_TURN_RATE: f64 = 6.0 * std::f64::consts::PI / 180.0;
 
-/// Batches span at most this fraction of the sensor's scan period.
-const BATCH_FRACTION: f64 = 1.0 / 16.0;
 
 /// Initial turn-rate uncertainty of a new track: 1.5°/s (1 sigma), about
 /// half the rate of a fast boat's hard turn (common practice).
@@ -178,6 +177,9 @@ pub struct Engine {
     scratch: Scratch,
     /// `tracking.association`: which `close_batch` runs.
     association: Association,
+    /// `tracking.batch_scan_fraction`: a batch spans at most this fraction
+    /// of its sensor's scan period.
+    batch_fraction: f64,
     /// JPDA settings and scratch (jpda_batch.rs).
     jpda: jpda_batch::Jpda,
     /// Candidate tracks of a transponder report (identity.rs).
@@ -283,7 +285,8 @@ impl Engine {
             assigner: SparseAssigner::new(),
             scratch: Scratch::default(),
             association: t.association,
-            jpda: jpda_batch::Jpda::new(t.jpda_max_events),
+            batch_fraction: t.batch_scan_fraction,
+            jpda: jpda_batch::Jpda::new(t.jpda_max_events, t.jpda_pruning),
             report_cand: Vec::new(),
         })
     }
@@ -381,7 +384,7 @@ impl Engine {
     }
 
     fn batch_span(&self, sensor: SensorId) -> f64 {
-        self.models[sensor as usize].scan_period_s * BATCH_FRACTION
+        self.models[sensor as usize].scan_period_s * self.batch_fraction
     }
 
     fn add_plot(&mut self, d: &Detection) {
@@ -712,11 +715,21 @@ impl Engine {
         if t < next {
             return;
         }
-        // Sweep once, at the latest whole second reached: the checks are
-        // monotone in time, so skipped seconds would find nothing more.
-        let at = Timestamp::from_unix_nanos(t.unix_nanos().div_euclid(SEC) * SEC);
-        self.next_sweep = Some(Timestamp::from_unix_nanos(at.unix_nanos() + SEC));
-        self.sweep(at, out);
+        // Every whole second in turn, not only the latest reached: a track
+        // that times out in a gap between records ends at the first second
+        // past its limit, however the gap is crossed (by the next record
+        // offline, by `advance` calls live). With no track left there is
+        // nothing to check and the gap is skipped.
+        let last = t.unix_nanos().div_euclid(SEC) * SEC;
+        let mut at = next.unix_nanos();
+        while at <= last {
+            self.sweep(Timestamp::from_unix_nanos(at), out);
+            if self.tracks.is_empty() {
+                break;
+            }
+            at += SEC;
+        }
+        self.next_sweep = Some(Timestamp::from_unix_nanos(last + SEC));
     }
 
     fn sweep(&mut self, at: Timestamp, out: &mut Vec<TrackRecord>) {
