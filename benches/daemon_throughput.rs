@@ -19,7 +19,9 @@ use skerry::daemon::replay::{self, Pace, Target};
 use skerry::engine::Engine;
 use skerry::time::Timestamp;
 use skerry::daemon::Tracker;
-use skerry::feed::{Record, SensorTable, TrackRecord};
+use skerry::config::Config;
+use skerry::feed::{Detection, Record, ScanEnd, SensorTable, TrackRecord};
+use skerry::geo::{Antenna, Geodetic, LocalFrame, geodetic_to_ecef};
 use std::collections::HashMap;
 use std::sync::{Arc, Mutex};
 use std::time::{Duration, Instant, SystemTime, UNIX_EPOCH};
@@ -271,8 +273,7 @@ async fn send_load(load: &Load, secs: f64, udp: std::net::SocketAddr) -> usize {
 
 /// One latency run: the daemon with `tracker` (wrapped in [`Stamped`]) and
 /// the `[serve]` overrides, the load sent for `secs`; prints the stages.
-async fn latency<T: Tracker>(label: &str, overrides: &[(&str, &str)], tracker: T, load: &Load, secs: f64) {
-    let cfg = config(overrides);
+async fn latency<T: Tracker>(label: &str, cfg: Config, tracker: T, load: &Load, secs: f64) {
     let window = cfg.serve.reorder_window_s;
     let stamps = Arc::new(Mutex::new(Stamps::default()));
     let d = start(cfg, Stamped { inner: tracker, stamps: stamps.clone() }).await;
@@ -376,12 +377,13 @@ async fn throughput(quick: bool) {
 /// Latency, stage by stage: the transport alone (Echo tracker) at
 /// 20 000 plots/s, then the real engine on a live radar scene.
 async fn latency_all(quick: bool) {
+    let cases = std::env::var("LATENCY_CASES").unwrap_or_else(|_| "echo,engine,wide".into());
     let secs = if quick { 1.0 } else { 5.0 };
     let stamped = Load::Stamped { rate: 20_000.0 };
     let windows: Vec<String> = std::env::var("LATENCY_WINDOWS").unwrap_or_else(|_| "1.0,0.05".into()).split(',').map(str::to_string).collect();
     let windows: Vec<&str> = windows.iter().map(String::as_str).collect();
-    for &window in &windows {
-        latency(&format!("Echo tracker, 20000 plots/s, reorder window {window} s"), &[("SKERRY__SERVE__REORDER_WINDOW_S", window)], Echo::default(), &stamped, secs).await;
+    for &window in windows.iter().filter(|_| cases.contains("echo")) {
+        latency(&format!("Echo tracker, 20000 plots/s, reorder window {window} s"), config(&[("SKERRY__SERVE__REORDER_WINDOW_S", window)]), Echo::default(), &stamped, secs).await;
     }
     // A live radar: `n` vessels seen every 2.5 s scan, each plot sent at
     // its beam time, each scan closed by a scan_end.
@@ -390,14 +392,100 @@ async fn latency_all(quick: bool) {
     let cfg = config(&[]);
     let scans = (scene_secs / 2.5).ceil() as u64 + 1;
     let scene = Load::Scene { records: feed(&cfg, n, scans), table: cfg.sensor_table() };
-    if std::env::var("LATENCY_ECHO_ONLY").is_ok() {
-        return;
+    let fractions: Vec<String> = std::env::var("LATENCY_FRACTIONS").unwrap_or_else(|_| "0.0625,0".into()).split(',').map(str::to_string).collect();
+    for &window in windows.iter().filter(|_| cases.contains("engine")) {
+        for fraction in &fractions {
+            let ov = [("SKERRY__SERVE__REORDER_WINDOW_S", window), ("SKERRY__TRACKING__BATCH_SCAN_FRACTION", fraction.as_str())];
+            let c = config(&ov);
+            let label = format!("engine (GNN), {n} vessels, {:.0} plots/s, reorder window {window} s, batch_scan_fraction {fraction}", n as f64 / 2.5);
+            latency(&label, c.clone(), Engine::new(&c).unwrap(), &scene, scene_secs).await;
+        }
     }
-    for &window in &windows {
-        let ov = [("SKERRY__SERVE__REORDER_WINDOW_S", window)];
-        let c = config(&ov);
-        latency(&format!("engine (GNN), {n} vessels, {:.0} plots/s, reorder window {window} s", n as f64 / 2.5), &ov, Engine::new(&c).unwrap(), &scene, scene_secs).await;
+    // The real engine at 20 000 plots/s: many radars, each with a
+    // harbour's worth of vessels.
+    // LATENCY_WIDE = radars,vessels per radar,scan period (s).
+    let wide: Vec<f64> = std::env::var("LATENCY_WIDE").unwrap_or_else(|_| if quick { "2,200,1.0".into() } else { "8,2500,1.0".into() }).split(',').filter_map(|v| v.parse().ok()).collect();
+    let (radars, per, period) = (wide[0] as usize, wide[1] as usize, wide[2]);
+    let wide_secs: f64 = if quick { 6.0 } else { 20.0 };
+    let (wcfg, wrecs) = wide_scene(radars, per, period, (wide_secs / period).ceil() as u64 + 1);
+    if cases.contains("offline") {
+        // The engine alone over the same records, for scale.
+        let mut e = Engine::new(&wcfg).unwrap();
+        let mut out = Vec::new();
+        let t = Instant::now();
+        let mut worst = 0.0f64;
+        let mut per_sec = Vec::new();
+        let mut sec_start = Instant::now();
+        let mut sec_feed = wrecs[0].time();
+        for r in &wrecs {
+            let t1 = Instant::now();
+            e.handle(r, &mut out);
+            worst = worst.max(t1.elapsed().as_secs_f64());
+            if r.time().secs_since(sec_feed) >= 1.0 {
+                per_sec.push((sec_start.elapsed().as_secs_f64() * 1e3, e.live_tracks()));
+                sec_start = Instant::now();
+                sec_feed = r.time();
+            }
+            out.clear();
+        }
+        let n = wrecs.len();
+        println!("engine alone over the wide scene: {n} records in {:.2} s ({:.0} records/s); slowest handle {:.1} ms; ms of engine time per feed second: {:?}", t.elapsed().as_secs_f64(), n as f64 / t.elapsed().as_secs_f64(), worst * 1e3, per_sec.iter().map(|v| (v.0.round(), v.1)).collect::<Vec<_>>());
     }
+    let wload = Load::Scene { records: wrecs, table: wcfg.sensor_table() };
+    for &window in windows.iter().filter(|_| cases.contains("wide")) {
+        for fraction in &fractions {
+            let mut c = wcfg.clone();
+            c.serve.reorder_window_s = window.parse().unwrap();
+            c.tracking.batch_scan_fraction = fraction.parse().unwrap();
+            let label = format!("engine (GNN), {radars} radars × {per} vessels, {period} s scans, {:.0} plots/s, reorder window {window} s, batch_scan_fraction {fraction}", (radars * per) as f64 / period);
+            latency(&label, c.clone(), Engine::new(&c).unwrap(), &wload, wide_secs).await;
+        }
+    }
+}
+
+/// A wide approach: `radars` radars on a 5-wide grid 40 km apart,
+/// each with `per` vessels spread over its coverage (1–17 km out) on
+/// straight courses at 4–14 m/s,
+/// scans of `period` s, each plot stamped with its beam time and each scan closed
+/// by a scan_end. Noise-free: the scene is about load and timing.
+fn wide_scene(radars: usize, per: usize, period: f64, scans: u64) -> (Config, Vec<Record>) {
+    let mut text = String::from("[site]\nname = \"wide approach\"\nlat_deg = 56.45\nlon_deg = 7.35\n\n[tracking]\nassociation = \"gnn\"\n\n[feed]\nmax_time_offset_s = 1.0e9\nmax_record_bytes = 4000\n");
+    let site = LocalFrame::new(Geodetic::new(56.45, 7.35, 0.0));
+    let mut pos = Vec::new();
+    for j in 0..radars {
+        let en = nalgebra::Vector2::new((j % 5) as f64 * 40_000.0, (j / 5) as f64 * 40_000.0);
+        let g = site.plane_to_geodetic(en, 0.0);
+        text.push_str(&format!(
+            "\n[[sensors]]\nid = \"mast-{j}\"\nkind = \"radar\"\nlat_deg = {}\nlon_deg = {}\nheight_m = 30.0\nrange_sigma_m = 12.0\nbearing_sigma_deg = 0.2\ndetection_probability = 0.9\nclutter_per_scan = 0.0\nmax_range_m = 18000.0\nscan_period_s = {period}\n",
+            g.lat_deg, g.lon_deg
+        ));
+        pos.push(Geodetic::new(g.lat_deg, g.lon_deg, 30.0));
+    }
+    let cfg = Config::from_toml_str(&text, "wide scene", &HashMap::new()).expect("wide scene config");
+    let t0 = Timestamp::parse_rfc3339("2026-05-14T06:00:00Z").unwrap();
+    let mut out = Vec::new();
+    for (j, p) in pos.iter().enumerate() {
+        let antenna = Antenna::new(*p, &site);
+        for k in 0..scans {
+            let start = t0.plus_secs(k as f64 * period + j as f64 * 0.1);
+            for i in 0..per {
+                let a = i as f64 * 2.399;
+                // Uniform over the disc 1–17 km: area-uniform radii.
+                let r0 = (1000.0f64.powi(2) + (17_000.0f64.powi(2) - 1000.0f64.powi(2)) * ((i * 7919 % 1000) as f64 + 0.5) / 1000.0).sqrt();
+                let (e0, n0) = (antenna.site_en.x + r0 * a.sin(), antenna.site_en.y + r0 * a.cos());
+                let speed = 4.0 + (i % 11) as f64;
+                let heading = a * 1.7;
+                let t = k as f64 * period;
+                let en = nalgebra::Vector2::new(e0 + speed * heading.sin() * t, n0 + speed * heading.cos() * t);
+                let (range_m, bearing) = antenna.range_bearing_to(geodetic_to_ecef(site.plane_to_geodetic(en, 0.0)));
+                let bearing_deg = bearing.to_degrees().rem_euclid(360.0);
+                out.push(Record::Detection(Detection { sensor: j as u16, time: start.plus_secs(period * bearing_deg / 360.0), scan: Some(k), range_m, bearing_deg, radial_speed_mps: None, snr_db: None }));
+            }
+            out.push(Record::ScanEnd(ScanEnd { sensor: j as u16, time: start.plus_secs(period), scan: k, sector_deg: None }));
+        }
+    }
+    out.sort_by(skerry::offline::feed_order);
+    (cfg, out)
 }
 
 async fn memory(quick: bool) {

@@ -86,7 +86,12 @@ pub struct EngineTask<T: Tracker> {
     /// The tracker's [`Tracker::next_due`] after each batch, for the
     /// reorder task.
     pub due: watch::Sender<Option<Timestamp>>,
+    /// When the live-track gauges were last set.
+    pub live_at: Option<Instant>,
 }
+
+/// Period of the live-track gauges.
+const LIVE_GAUGE_PERIOD: std::time::Duration = std::time::Duration::from_millis(100);
 
 impl<T: Tracker> EngineTask<T> {
     fn batch(&mut self, b: &Batch, out: &mut Vec<TrackRecord>, sum: &mut EngineSummary) {
@@ -118,9 +123,15 @@ impl<T: Tracker> EngineTask<T> {
         out.clear();
         let due = self.tracker.next_due();
         self.due.send_if_modified(|d| std::mem::replace(d, due) != due);
-        let live = self.tracker.live();
-        for (g, v) in self.metrics.tracks.iter().zip(live) {
-            g.store(v, Relaxed);
+        // Counting live tracks visits every track: at most every
+        // LIVE_GAUGE_PERIOD, not after every batch (a batch may be one
+        // datagram's worth of plots, a thousand times a second).
+        if b.last || self.live_at.is_none_or(|t| t.elapsed() >= LIVE_GAUGE_PERIOD) {
+            self.live_at = Some(Instant::now());
+            let live = self.tracker.live();
+            for (g, v) in self.metrics.tracks.iter().zip(live) {
+                g.store(v, Relaxed);
+            }
         }
     }
 

@@ -318,6 +318,7 @@ pub async fn run_with<T: Tracker>(cfg: Config, listeners: Listeners, shutdown: C
             publisher: Publisher::new(s.subscriber_queue, s.max_subscribers, Some(metrics.clone())),
             metrics: metrics.clone(),
             due: due_tx,
+            live_at: None,
         }
         .run(),
     );
