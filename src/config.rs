@@ -159,6 +159,10 @@ pub struct TrackingConfig {
     /// passes its span) at some cost in joint association; 0 batches only
     /// plots of the same time.
     pub batch_scan_fraction: f64,
+    /// Most tentative tracks one batch may start; further plots that would
+    /// start one are dropped and counted (`skerry_track_starts_dropped_total`),
+    /// so heavy clutter cannot make a batch, or the scans after it, slow.
+    pub max_new_tracks_per_batch: u32,
     /// A report whose identity a track holds must fall within this many
     /// metres of it, or it raises an identity conflict.
     pub identity_gate_m: f64,
@@ -484,6 +488,9 @@ impl Config {
         if !(t.batch_scan_fraction.is_finite() && (0.0..=0.5).contains(&t.batch_scan_fraction)) {
             return bad("tracking.batch_scan_fraction", format!("must be in [0, 0.5] (got {})", t.batch_scan_fraction));
         }
+        if t.max_new_tracks_per_batch == 0 {
+            return bad("tracking.max_new_tracks_per_batch", "must be at least 1");
+        }
         if t.model_sojourn_s.iter().any(|v| !(v.is_finite() && *v > 0.0)) {
             return bad("tracking.model_sojourn_s", "each must be a positive number of seconds");
         }
@@ -610,6 +617,27 @@ association = "gnn"
         }
         let e = load(&format!("{GOOD}\n[record]\ndir = \"\"\n")).unwrap_err().to_string();
         assert!(e.contains("record.dir"), "{e}");
+    }
+
+    #[test]
+    fn batching_start_cap_and_pruning_keys() {
+        let c = load(GOOD).unwrap();
+        assert_eq!((c.tracking.batch_scan_fraction, c.tracking.max_new_tracks_per_batch, c.tracking.jpda_pruning), (0.0625, 500, true));
+        let c = load(&format!("{GOOD}batch_scan_fraction = 0.0\nmax_new_tracks_per_batch = 1\njpda_pruning = false\n")).unwrap();
+        assert_eq!((c.tracking.batch_scan_fraction, c.tracking.max_new_tracks_per_batch, c.tracking.jpda_pruning), (0.0, 1, false));
+        for (line, key) in [
+            ("batch_scan_fraction = -0.01", "tracking.batch_scan_fraction"),
+            ("batch_scan_fraction = 0.75", "tracking.batch_scan_fraction"),
+            ("batch_scan_fraction = nan", "tracking.batch_scan_fraction"),
+            ("max_new_tracks_per_batch = 0", "tracking.max_new_tracks_per_batch"),
+            ("max_new_tracks_per_batch = -5", "max_new_tracks_per_batch"),
+            // (The layered loader reads "yes", "on" and the like as true.)
+            ("jpda_pruning = [1]", "jpda_pruning"),
+        ] {
+            let Err(e) = load(&format!("{GOOD}{line}\n")) else { panic!("`{line}` was accepted") };
+            let e = e.to_string();
+            assert!(e.contains(key), "{line}: {e}");
+        }
     }
 
     #[test]

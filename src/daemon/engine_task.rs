@@ -38,6 +38,11 @@ pub trait Tracker: Send + 'static {
     fn picture(&self) -> Vec<TrackRecord>;
     /// Live tracks: tentative, confirmed, coasting.
     fn live(&self) -> [u64; 3];
+    /// Track starts dropped so far by sensor (the engine's cap on starts
+    /// per batch); empty: none counted.
+    fn starts_dropped(&self) -> &[u64] {
+        &[]
+    }
 }
 
 impl Tracker for Engine {
@@ -59,6 +64,9 @@ impl Tracker for Engine {
     fn live(&self) -> [u64; 3] {
         let s = self.stats();
         [s.tentative as u64, s.confirmed as u64, s.coasting as u64]
+    }
+    fn starts_dropped(&self) -> &[u64] {
+        Engine::starts_dropped(self)
     }
 }
 
@@ -131,6 +139,9 @@ impl<T: Tracker> EngineTask<T> {
             let live = self.tracker.live();
             for (g, v) in self.metrics.tracks.iter().zip(live) {
                 g.store(v, Relaxed);
+            }
+            for (i, n) in self.tracker.starts_dropped().iter().enumerate() {
+                self.metrics.sensor(Some(i as u16)).starts_dropped.store(*n, Relaxed);
             }
         }
     }

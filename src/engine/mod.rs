@@ -36,6 +36,7 @@
 //! result does not depend on when the daemon's clock ticks.
 
 pub mod assign;
+mod bound;
 pub mod filter;
 pub mod imm;
 pub mod jpda;
@@ -82,6 +83,9 @@ pub struct EngineStats {
     pub reports: u64,
     pub identity_conflicts: u64,
     pub batches: u64,
+    /// Plots that would have started a tentative track but found the
+    /// batch's `tracking.max_new_tracks_per_batch` spent.
+    pub starts_dropped: u64,
 }
 
 /// Grid cell edge (m). A track is found for any plot within one cell of
@@ -133,7 +137,10 @@ struct Scratch {
     row_to_col: Vec<Option<u32>>,
     near_firm: Vec<bool>,
     col_taken: Vec<bool>,
+    /// Scratch of `bound::prune_pairs`.
+    prune: bound::PruneScratch,
 }
+
 
 pub struct Engine {
     site: LocalFrame,
@@ -180,6 +187,12 @@ pub struct Engine {
     /// `tracking.batch_scan_fraction`: a batch spans at most this fraction
     /// of its sensor's scan period.
     batch_fraction: f64,
+    /// `tracking.max_new_tracks_per_batch`, and the starts made in the
+    /// batch being closed.
+    max_starts: u32,
+    batch_starts: u32,
+    /// Starts dropped by the cap, by sensor.
+    starts_dropped: Vec<u64>,
     /// JPDA settings and scratch (jpda_batch.rs).
     jpda: jpda_batch::Jpda,
     /// Candidate tracks of a transponder report (identity.rs).
@@ -286,6 +299,9 @@ impl Engine {
             scratch: Scratch::default(),
             association: t.association,
             batch_fraction: t.batch_scan_fraction,
+            max_starts: t.max_new_tracks_per_batch,
+            batch_starts: 0,
+            starts_dropped: vec![0; cfg.sensors.len()],
             jpda: jpda_batch::Jpda::new(t.jpda_max_events, t.jpda_pruning),
             report_cand: Vec::new(),
         })
@@ -376,6 +392,29 @@ impl Engine {
         s.confirmed = self.tracks.iter().filter(|t| t.status == TrackStatus::Confirmed).count();
         s.coasting = self.tracks.iter().filter(|t| t.status == TrackStatus::Coasting).count();
         s
+    }
+
+    /// Track starts dropped by `tracking.max_new_tracks_per_batch`, by
+    /// sensor (indexed as the configuration's sensors).
+    pub fn starts_dropped(&self) -> &[u64] {
+        &self.starts_dropped
+    }
+
+    /// Whether the batch being closed may start one more tentative track
+    /// (`tracking.max_new_tracks_per_batch`); a refusal is counted. The
+    /// cap bounds a batch's work however heavy the clutter: each start
+    /// costs a filter, a track-table entry and a track record now, and
+    /// gating work in every later scan.
+    fn may_start(&mut self, sensor: SensorId) -> bool {
+        if self.batch_starts < self.max_starts {
+            self.batch_starts += 1;
+            return true;
+        }
+        self.stats.starts_dropped += 1;
+        if let Some(n) = self.starts_dropped.get_mut(sensor as usize) {
+            *n += 1;
+        }
+        false
     }
 
     /// Number of live tracks.
@@ -521,6 +560,7 @@ impl Engine {
         let batch = std::mem::take(&mut self.batch);
         self.batch_serial += 1;
         self.stats.batches += 1;
+        self.batch_starts = 0;
         let serial = self.batch_serial;
         let sensor = batch.sensor;
         let model = &self.models[sensor as usize];
@@ -597,6 +637,7 @@ impl Engine {
                 sc.pairs.push((row as u32, col as u32, cost));
             }
         }
+        bound::prune_pairs(&mut sc.pairs, sc.col_track.len(), &mut sc.prune);
         sc.row_alone.clear();
         sc.row_alone.resize(batch.plots.len(), 0.0);
         sc.col_alone.clear();
@@ -649,6 +690,9 @@ impl Engine {
                         self.stats.plots_associated += 1;
                         continue;
                     }
+                }
+                if !self.may_start(sensor) {
+                    continue;
                 }
                 let idx = self.new_track(&plot.z, &plot.r, plot.det.time, sensor);
                 let t = &self.tracks[idx as usize];
