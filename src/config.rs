@@ -163,6 +163,11 @@ pub struct TrackingConfig {
     /// start one are dropped and counted (`skerry_track_starts_dropped_total`),
     /// so heavy clutter cannot make a batch, or the scans after it, slow.
     pub max_new_tracks_per_batch: u32,
+    /// Most plots one batch takes; the later plots of a full batch are
+    /// dropped and counted (`skerry_plots_dropped_total`). Overload
+    /// protection for a radar swamped by clutter or interference: it
+    /// bounds a batch's gating and association work.
+    pub max_plots_per_batch: u32,
     /// A report whose identity a track holds must fall within this many
     /// metres of it, or it raises an identity conflict.
     pub identity_gate_m: f64,
@@ -491,6 +496,9 @@ impl Config {
         if t.max_new_tracks_per_batch == 0 {
             return bad("tracking.max_new_tracks_per_batch", "must be at least 1");
         }
+        if t.max_plots_per_batch == 0 {
+            return bad("tracking.max_plots_per_batch", "must be at least 1");
+        }
         if t.model_sojourn_s.iter().any(|v| !(v.is_finite() && *v > 0.0)) {
             return bad("tracking.model_sojourn_s", "each must be a positive number of seconds");
         }
@@ -631,6 +639,7 @@ association = "gnn"
             ("batch_scan_fraction = nan", "tracking.batch_scan_fraction"),
             ("max_new_tracks_per_batch = 0", "tracking.max_new_tracks_per_batch"),
             ("max_new_tracks_per_batch = -5", "max_new_tracks_per_batch"),
+            ("max_plots_per_batch = 0", "tracking.max_plots_per_batch"),
             // (The layered loader reads "yes", "on" and the like as true.)
             ("jpda_pruning = [1]", "jpda_pruning"),
         ] {

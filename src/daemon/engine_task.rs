@@ -10,7 +10,7 @@
 use super::metrics::Metrics;
 use super::publisher::{Filter, Publisher, SubscribeError, Subscription};
 use super::sequencer::Batch;
-use crate::engine::Engine;
+use crate::engine::{Dropped, Engine};
 use crate::feed::{Record, Screen, TrackRecord, TrackStatus};
 use crate::time::Timestamp;
 use std::sync::Arc;
@@ -38,9 +38,9 @@ pub trait Tracker: Send + 'static {
     fn picture(&self) -> Vec<TrackRecord>;
     /// Live tracks: tentative, confirmed, coasting.
     fn live(&self) -> [u64; 3];
-    /// Track starts dropped so far by sensor (the engine's cap on starts
-    /// per batch); empty: none counted.
-    fn starts_dropped(&self) -> &[u64] {
+    /// What the tracker's overload limits dropped so far, by sensor;
+    /// empty: none counted.
+    fn dropped(&self) -> &[Dropped] {
         &[]
     }
 }
@@ -65,8 +65,8 @@ impl Tracker for Engine {
         let s = self.stats();
         [s.tentative as u64, s.confirmed as u64, s.coasting as u64]
     }
-    fn starts_dropped(&self) -> &[u64] {
-        Engine::starts_dropped(self)
+    fn dropped(&self) -> &[Dropped] {
+        Engine::dropped(self)
     }
 }
 
@@ -140,8 +140,10 @@ impl<T: Tracker> EngineTask<T> {
             for (g, v) in self.metrics.tracks.iter().zip(live) {
                 g.store(v, Relaxed);
             }
-            for (i, n) in self.tracker.starts_dropped().iter().enumerate() {
-                self.metrics.sensor(Some(i as u16)).starts_dropped.store(*n, Relaxed);
+            for (i, d) in self.tracker.dropped().iter().enumerate() {
+                let c = self.metrics.sensor(Some(i as u16));
+                c.plots_dropped.store(d.plots, Relaxed);
+                c.starts_dropped.store(d.starts, Relaxed);
             }
         }
     }

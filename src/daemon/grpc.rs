@@ -141,6 +141,7 @@ pub fn health_report(m: &Metrics, now: crate::time::Timestamp) -> v1::HealthRepo
                 clock_offset_s: c.as_ref().and_then(|c| c.offset_s),
                 clock_state: c.map(|c| c.state).unwrap_or(ClockState::Never).as_str().to_string(),
                 rate_per_s: rates.get(id as usize).copied().unwrap_or(0.0),
+                plots_dropped: s.plots_dropped,
                 track_starts_dropped: s.starts_dropped,
             }
         })

@@ -51,8 +51,10 @@ pub struct SensorCounters {
     pub rejected: [AtomicU64; REASONS.len()],
     /// Daemon clock of the last record, ns since the epoch; 0: never.
     pub last_seen_ns: AtomicI64,
-    /// Track starts the engine dropped (`tracking.max_new_tracks_per_batch`),
-    /// as the engine task last read them.
+    /// Plots and track starts the engine's overload limits dropped
+    /// (`tracking.max_plots_per_batch`, `max_new_tracks_per_batch`), as the
+    /// engine task last read them.
+    pub plots_dropped: AtomicU64,
     pub starts_dropped: AtomicU64,
 }
 
@@ -64,6 +66,7 @@ pub struct SensorSnapshot {
     pub processed: u64,
     pub rejected: [u64; REASONS.len()],
     pub last_seen: Option<Timestamp>,
+    pub plots_dropped: u64,
     pub starts_dropped: u64,
 }
 
@@ -170,6 +173,7 @@ impl Metrics {
             processed: c.processed.load(Relaxed),
             rejected: std::array::from_fn(|i| c.rejected[i].load(Relaxed)),
             last_seen: (ns != 0).then(|| Timestamp::from_unix_nanos(ns)),
+            plots_dropped: c.plots_dropped.load(Relaxed),
             starts_dropped: c.starts_dropped.load(Relaxed),
         }
     }
@@ -182,6 +186,7 @@ impl Metrics {
             t.received += s.received;
             t.accepted += s.accepted;
             t.processed += s.processed;
+            t.plots_dropped += s.plots_dropped;
             t.starts_dropped += s.starts_dropped;
             for (a, b) in t.rejected.iter_mut().zip(s.rejected) {
                 *a += b;
@@ -250,6 +255,7 @@ impl Metrics {
         counter(&mut o, "skerry_records_received_total", "Feed records received, by the sensor they named.", &|s| s.received);
         counter(&mut o, "skerry_records_accepted_total", "Records that passed the ingest checks.", &|s| s.accepted);
         counter(&mut o, "skerry_records_processed_total", "Records handed to the tracking engine.", &|s| s.processed);
+        counter(&mut o, "skerry_plots_dropped_total", "Plots the engine dropped because their batch already held tracking.max_plots_per_batch plots.", &|s| s.plots_dropped);
         counter(&mut o, "skerry_track_starts_dropped_total", "Plots that would have started a tentative track, dropped because their batch had started tracking.max_new_tracks_per_batch already.", &|s| s.starts_dropped);
         let _ = writeln!(o, "# HELP skerry_records_rejected_total Records rejected, by sensor and reason.\n# TYPE skerry_records_rejected_total counter");
         for ((_, n), s) in names.iter().zip(&snaps) {

@@ -86,6 +86,16 @@ pub struct EngineStats {
     /// Plots that would have started a tentative track but found the
     /// batch's `tracking.max_new_tracks_per_batch` spent.
     pub starts_dropped: u64,
+    /// Plots dropped because their batch held `tracking.max_plots_per_batch`.
+    pub plots_dropped: u64,
+}
+
+/// What one sensor's overload limits dropped (`tracking.max_plots_per_batch`,
+/// `tracking.max_new_tracks_per_batch`).
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct Dropped {
+    pub plots: u64,
+    pub starts: u64,
 }
 
 /// Grid cell edge (m). A track is found for any plot within one cell of
@@ -191,8 +201,10 @@ pub struct Engine {
     /// batch being closed.
     max_starts: u32,
     batch_starts: u32,
-    /// Starts dropped by the cap, by sensor.
-    starts_dropped: Vec<u64>,
+    /// `tracking.max_plots_per_batch`.
+    max_plots: usize,
+    /// What the two caps dropped, by sensor.
+    dropped: Vec<Dropped>,
     /// JPDA settings and scratch (jpda_batch.rs).
     jpda: jpda_batch::Jpda,
     /// Candidate tracks of a transponder report (identity.rs).
@@ -301,7 +313,8 @@ impl Engine {
             batch_fraction: t.batch_scan_fraction,
             max_starts: t.max_new_tracks_per_batch,
             batch_starts: 0,
-            starts_dropped: vec![0; cfg.sensors.len()],
+            max_plots: t.max_plots_per_batch as usize,
+            dropped: vec![Dropped::default(); cfg.sensors.len()],
             jpda: jpda_batch::Jpda::new(t.jpda_max_events, t.jpda_pruning),
             report_cand: Vec::new(),
         })
@@ -394,10 +407,10 @@ impl Engine {
         s
     }
 
-    /// Track starts dropped by `tracking.max_new_tracks_per_batch`, by
-    /// sensor (indexed as the configuration's sensors).
-    pub fn starts_dropped(&self) -> &[u64] {
-        &self.starts_dropped
+    /// What the overload limits dropped so far, by sensor (indexed as the
+    /// configuration's sensors).
+    pub fn dropped(&self) -> &[Dropped] {
+        &self.dropped
     }
 
     /// Whether the batch being closed may start one more tentative track
@@ -411,8 +424,8 @@ impl Engine {
             return true;
         }
         self.stats.starts_dropped += 1;
-        if let Some(n) = self.starts_dropped.get_mut(sensor as usize) {
-            *n += 1;
+        if let Some(d) = self.dropped.get_mut(sensor as usize) {
+            d.starts += 1;
         }
         false
     }
@@ -429,6 +442,16 @@ impl Engine {
     fn add_plot(&mut self, d: &Detection) {
         let m = &self.models[d.sensor as usize];
         let Some(radar) = &m.radar else { return };
+        // Overload protection: a batch holds at most max_plots plots, so
+        // its gating and association work stay bounded however heavy the
+        // clutter (the later plots of a full batch are dropped, counted).
+        if self.batch.plots.len() >= self.max_plots {
+            self.stats.plots_dropped += 1;
+            if let Some(x) = self.dropped.get_mut(d.sensor as usize) {
+                x.plots += 1;
+            }
+            return;
+        }
         let (z, r) = radar.convert(d.range_m, d.bearing_deg.to_radians(), m.sigma_r_m, m.sigma_b_rad);
         if !(z.x.is_finite() && z.y.is_finite()) {
             return;
