@@ -204,7 +204,7 @@ fn heavy(c: &mut Criterion) {
     let (cfg, warm, rest) = scene();
     let mut g = c.benchmark_group("jpda");
     g.sample_size(20);
-    for k in [500usize, 5000, 20000] {
+    for k in [500usize, 5000, 20000, 50000] {
         let (scan, after) = heavy_scan(&cfg, &warm, &rest, k);
         {
             // Ten fresh passes for the record: the cluster counts, the worst
@@ -235,13 +235,14 @@ fn heavy(c: &mut Criterion) {
                 t_next.push(t1.elapsed().as_secs_f64() * 1e3);
                 if pass == 0 {
                     line = format!(
-                        "{} records; clusters: exact {} ({} events), belief propagation {} (over budget {}), largest {} tracks; {} live tracks after; next scan {} records",
+                        "{} records; clusters: exact {} ({} events), belief propagation {} (over budget {}), largest {} tracks; {} starts dropped; {} live tracks after; next scan {} records",
                         scan.len(),
                         c1.exact - before.exact,
                         c1.events - before.events,
                         c1.belief_propagation - before.belief_propagation,
                         c1.over_budget - before.over_budget,
                         c1.largest_cluster_tracks,
+                        e.stats().starts_dropped,
                         e.live_tracks(),
                         next.len()
                     );
@@ -268,8 +269,33 @@ fn heavy(c: &mut Criterion) {
                 })
                 .collect();
             let (gm, gx) = stat(&mut t_gnn);
+            // Both again with no cap on track starts, for comparison.
+            let mut ucfg = cfg.clone();
+            ucfg.tracking.max_new_tracks_per_batch = u32::MAX;
+            let mut ugcfg = gcfg.clone();
+            ugcfg.tracking.max_new_tracks_per_batch = u32::MAX;
+            let mut t_unc: Vec<f64> = [&ucfg, &ugcfg]
+                .iter()
+                .map(|c| {
+                    let mut v: Vec<f64> = (0..5)
+                        .map(|_| {
+                            let mut e = warmed(c, &warm);
+                            let mut out: Vec<TrackRecord> = Vec::new();
+                            let t0 = Instant::now();
+                            for r in &scan {
+                                e.handle(r, &mut out);
+                            }
+                            e.advance(scan[scan.len() - 1].time().plus_secs(1.0), &mut out);
+                            t0.elapsed().as_secs_f64() * 1e3
+                        })
+                        .collect();
+                    stat(&mut v).0
+                })
+                .collect();
+            let (um, ugm) = (t_unc[0], t_unc[1]);
+            t_unc.clear();
             eprintln!(
-                "heavy batch K={k}: {line}; heavy scan median {sm:.2} ms, max {sx:.2} ms; next scan median {nm:.2} ms, max {nx:.2} ms; GNN heavy scan median {gm:.2} ms, max {gx:.2} ms"
+                "heavy batch K={k}: {line}; heavy scan median {sm:.2} ms, max {sx:.2} ms; next scan median {nm:.2} ms, max {nx:.2} ms; GNN heavy scan median {gm:.2} ms, max {gx:.2} ms; with no cap on starts: JPDA {um:.2} ms, GNN {ugm:.2} ms (medians of 5)"
             );
         }
         g.throughput(Throughput::Elements(scan.len() as u64));

@@ -149,6 +149,25 @@ pub struct TrackingConfig {
     /// JPDA: clusters with more joint events than this use the
     /// approximation.
     pub jpda_max_events: u64,
+    /// JPDA: exact enumeration keeps only the most probable of the joint
+    /// events that differ by a permutation of the same plots among the
+    /// same tracks (JPDA*, against track coalescence); false: plain JPDA.
+    pub jpda_pruning: bool,
+    /// Plots of one radar are associated together while they lie within
+    /// this fraction of its scan period of the batch's first plot. Smaller
+    /// batches leave the engine sooner (a batch is held until feed time
+    /// passes its span) at some cost in joint association; 0 batches only
+    /// plots of the same time.
+    pub batch_scan_fraction: f64,
+    /// Most tentative tracks one batch may start; further plots that would
+    /// start one are dropped and counted (`skerry_track_starts_dropped_total`),
+    /// so heavy clutter cannot make a batch, or the scans after it, slow.
+    pub max_new_tracks_per_batch: u32,
+    /// Most plots one batch takes; the later plots of a full batch are
+    /// dropped and counted (`skerry_plots_dropped_total`). Overload
+    /// protection for a radar swamped by clutter or interference: it
+    /// bounds a batch's gating and association work.
+    pub max_plots_per_batch: u32,
     /// A report whose identity a track holds must fall within this many
     /// metres of it, or it raises an identity conflict.
     pub identity_gate_m: f64,
@@ -504,6 +523,15 @@ impl Config {
         if !(t.new_track_density_per_km2.is_finite() && t.new_track_density_per_km2 >= 0.0) {
             return bad("tracking.new_track_density_per_km2", "must be ≥ 0");
         }
+        if !(t.batch_scan_fraction.is_finite() && (0.0..=0.5).contains(&t.batch_scan_fraction)) {
+            return bad("tracking.batch_scan_fraction", format!("must be in [0, 0.5] (got {})", t.batch_scan_fraction));
+        }
+        if t.max_new_tracks_per_batch == 0 {
+            return bad("tracking.max_new_tracks_per_batch", "must be at least 1");
+        }
+        if t.max_plots_per_batch == 0 {
+            return bad("tracking.max_plots_per_batch", "must be at least 1");
+        }
         if t.model_sojourn_s.iter().any(|v| !(v.is_finite() && *v > 0.0)) {
             return bad("tracking.model_sojourn_s", "each must be a positive number of seconds");
         }
@@ -666,6 +694,28 @@ association = "gnn"
         }
         // The same pair on two radars is fine once one SIC differs.
         load(&format!("{}{second_radar}asterix_sac = 25\nasterix_sic = 202\n", GOOD.replace(radar, "scan_period_s = 2.5\nasterix_sac = 25\nasterix_sic = 201"))).unwrap();
+    }
+
+    #[test]
+    fn batching_start_cap_and_pruning_keys() {
+        let c = load(GOOD).unwrap();
+        assert_eq!((c.tracking.batch_scan_fraction, c.tracking.max_new_tracks_per_batch, c.tracking.jpda_pruning), (0.0625, 500, true));
+        let c = load(&format!("{GOOD}batch_scan_fraction = 0.0\nmax_new_tracks_per_batch = 1\njpda_pruning = false\n")).unwrap();
+        assert_eq!((c.tracking.batch_scan_fraction, c.tracking.max_new_tracks_per_batch, c.tracking.jpda_pruning), (0.0, 1, false));
+        for (line, key) in [
+            ("batch_scan_fraction = -0.01", "tracking.batch_scan_fraction"),
+            ("batch_scan_fraction = 0.75", "tracking.batch_scan_fraction"),
+            ("batch_scan_fraction = nan", "tracking.batch_scan_fraction"),
+            ("max_new_tracks_per_batch = 0", "tracking.max_new_tracks_per_batch"),
+            ("max_new_tracks_per_batch = -5", "max_new_tracks_per_batch"),
+            ("max_plots_per_batch = 0", "tracking.max_plots_per_batch"),
+            // (The layered loader reads "yes", "on" and the like as true.)
+            ("jpda_pruning = [1]", "jpda_pruning"),
+        ] {
+            let Err(e) = load(&format!("{GOOD}{line}\n")) else { panic!("`{line}` was accepted") };
+            let e = e.to_string();
+            assert!(e.contains(key), "{line}: {e}");
+        }
     }
 
     #[test]

@@ -20,4 +20,11 @@ impl DaemonClock {
     pub fn now(&self) -> Timestamp {
         Timestamp::from_unix_nanos(self.wall.unix_nanos() + self.base.elapsed().as_nanos() as i64)
     }
+
+    /// The monotonic instant at which [`DaemonClock::now`] reads `t`
+    /// (the start instant for a `t` before the start).
+    pub fn instant_of(&self, t: Timestamp) -> Instant {
+        let ns = t.unix_nanos().saturating_sub(self.wall.unix_nanos()).max(0);
+        self.base + std::time::Duration::from_nanos(ns as u64)
+    }
 }

@@ -20,14 +20,14 @@ use super::clock::DaemonClock;
 use super::metrics::Metrics;
 use super::publisher::{Filter, Publisher, SubscribeError, Subscription};
 use super::sequencer::Batch;
-use crate::engine::{Engine, EngineState};
+use crate::engine::{Dropped, Engine, EngineState};
 use crate::feed::{Record, Screen, TrackRecord, TrackStatus};
 use crate::snapshot::{FeedKey, Fingerprint, SnapshotDir};
 use crate::time::Timestamp;
 use std::sync::Arc;
 use std::sync::atomic::Ordering::Relaxed;
 use std::time::{Duration, Instant};
-use tokio::sync::{mpsc, oneshot};
+use tokio::sync::{mpsc, oneshot, watch};
 
 /// What the daemon needs of a tracking engine. [`Engine`] is the real
 /// one; tests may drive the daemon with another.
@@ -36,6 +36,13 @@ pub trait Tracker: Send + 'static {
     fn handle(&mut self, rec: &Record, out: &mut Vec<TrackRecord>);
     /// Feed time reached `now`: no record earlier than `now` follows.
     fn advance(&mut self, now: Timestamp, out: &mut Vec<TrackRecord>);
+    /// The earliest feed time at which `advance` would make or close
+    /// something (an open batch, a timeout check); `None`: nothing waits
+    /// on feed time. The reorder task releases up to it as soon as the
+    /// buffer allows, rather than at its next clock tick.
+    fn next_due(&self) -> Option<Timestamp> {
+        None
+    }
     /// End of the feed.
     fn finish(&mut self, out: &mut Vec<TrackRecord>);
     /// The latest record of every live track.
@@ -47,6 +54,12 @@ pub trait Tracker: Send + 'static {
     fn state(&self) -> Option<EngineState> {
         None
     }
+
+    /// What the tracker's overload limits dropped so far, by sensor;
+    /// empty: none counted.
+    fn dropped(&self) -> &[Dropped] {
+        &[]
+    }
 }
 
 impl Tracker for Engine {
@@ -55,6 +68,9 @@ impl Tracker for Engine {
     }
     fn advance(&mut self, now: Timestamp, out: &mut Vec<TrackRecord>) {
         Engine::advance(self, now, out)
+    }
+    fn next_due(&self) -> Option<Timestamp> {
+        Engine::next_due(self)
     }
     fn finish(&mut self, out: &mut Vec<TrackRecord>) {
         Engine::finish(self, out)
@@ -68,6 +84,10 @@ impl Tracker for Engine {
     }
     fn state(&self) -> Option<EngineState> {
         Some(Engine::state(self))
+    }
+
+    fn dropped(&self) -> &[Dropped] {
+        Engine::dropped(self)
     }
 }
 
@@ -108,7 +128,15 @@ pub struct EngineTask<T: Tracker> {
     pub control: mpsc::Receiver<Control>,
     pub publisher: Publisher,
     pub metrics: Arc<Metrics>,
+    /// The tracker's [`Tracker::next_due`] after each batch, for the
+    /// reorder task.
+    pub due: watch::Sender<Option<Timestamp>>,
+    /// When the live-track gauges were last set.
+    pub live_at: Option<Instant>,
 }
+
+/// Period of the live-track gauges.
+const LIVE_GAUGE_PERIOD: std::time::Duration = std::time::Duration::from_millis(100);
 
 impl<T: Tracker> EngineTask<T> {
     /// Handles a batch's records and release time; the caller publishes.
@@ -146,14 +174,27 @@ impl<T: Tracker> EngineTask<T> {
     }
 
     /// Publishes what the batch made and updates the gauges.
-    fn publish(&mut self, out: &mut Vec<TrackRecord>, sum: &mut EngineSummary) {
+    fn publish(&mut self, out: &mut Vec<TrackRecord>, sum: &mut EngineSummary, last: bool) {
         sum.track_records += out.len() as u64;
         self.metrics.track_records.fetch_add(out.len() as u64, Relaxed);
         self.publisher.publish(out);
         out.clear();
-        let live = self.tracker.live();
-        for (g, v) in self.metrics.tracks.iter().zip(live) {
-            g.store(v, Relaxed);
+        let due = self.tracker.next_due();
+        self.due.send_if_modified(|d| std::mem::replace(d, due) != due);
+        // Counting live tracks visits every track: at most every
+        // LIVE_GAUGE_PERIOD, not after every batch (a batch may be one
+        // datagram's worth of plots, a thousand times a second).
+        if last || self.live_at.is_none_or(|t| t.elapsed() >= LIVE_GAUGE_PERIOD) {
+            self.live_at = Some(Instant::now());
+            let live = self.tracker.live();
+            for (g, v) in self.metrics.tracks.iter().zip(live) {
+                g.store(v, Relaxed);
+            }
+            for (i, d) in self.tracker.dropped().iter().enumerate() {
+                let c = self.metrics.sensor(Some(i as u16));
+                c.plots_dropped.store(d.plots, Relaxed);
+                c.starts_dropped.store(d.starts, Relaxed);
+            }
         }
     }
 
@@ -228,7 +269,7 @@ impl<T: Tracker> EngineTask<T> {
                             self = self.final_snapshot(&mut writing).await;
                             self.tracker.finish(&mut out);
                         }
-                        self.publish(&mut out, &mut sum);
+                        self.publish(&mut out, &mut sum, b.last);
                         if b.last {
                             break;
                         }
@@ -237,7 +278,7 @@ impl<T: Tracker> EngineTask<T> {
                         // The reorder task ended without a last batch.
                         self = self.final_snapshot(&mut writing).await;
                         self.tracker.finish(&mut out);
-                        self.publish(&mut out, &mut sum);
+                        self.publish(&mut out, &mut sum, true);
                         break;
                     }
                 },

@@ -142,6 +142,8 @@ pub fn health_report(m: &Metrics, now: crate::time::Timestamp) -> v1::HealthRepo
                 clock_state: c.map(|c| c.state).unwrap_or(ClockState::Never).as_str().to_string(),
                 rate_per_s: rates.get(id as usize).copied().unwrap_or(0.0),
                 rotation_period_s: s.rotation_period_s,
+                plots_dropped: s.plots_dropped,
+                track_starts_dropped: s.starts_dropped,
             }
         })
         .collect();

@@ -83,6 +83,11 @@ pub struct SensorCounters {
     /// Radars: the antenna rotation period last measured (ASTERIX
     /// I034/041), as f64 bits; 0: none yet.
     pub rotation_period_bits: AtomicU64,
+    /// Plots and track starts the engine's overload limits dropped
+    /// (`tracking.max_plots_per_batch`, `max_new_tracks_per_batch`), as the
+    /// engine task last read them.
+    pub plots_dropped: AtomicU64,
+    pub starts_dropped: AtomicU64,
 }
 
 // Written out: `Default` is derived for arrays of up to 32 only.
@@ -95,6 +100,8 @@ impl Default for SensorCounters {
             rejected: std::array::from_fn(|_| AtomicU64::new(0)),
             last_seen_ns: AtomicI64::new(0),
             rotation_period_bits: AtomicU64::new(0),
+            plots_dropped: AtomicU64::new(0),
+            starts_dropped: AtomicU64::new(0),
         }
     }
 }
@@ -109,11 +116,13 @@ pub struct SensorSnapshot {
     pub last_seen: Option<Timestamp>,
     /// The radar's measured antenna rotation period (s), if reported.
     pub rotation_period_s: Option<f64>,
+    pub plots_dropped: u64,
+    pub starts_dropped: u64,
 }
 
 impl Default for SensorSnapshot {
     fn default() -> Self {
-        SensorSnapshot { received: 0, accepted: 0, processed: 0, rejected: [0; REASONS.len()], last_seen: None, rotation_period_s: None }
+        SensorSnapshot { received: 0, accepted: 0, processed: 0, rejected: [0; REASONS.len()], last_seen: None, rotation_period_s: None, plots_dropped: 0, starts_dropped: 0 }
     }
 }
 
@@ -223,6 +232,8 @@ impl Metrics {
             processed: c.processed.load(Relaxed),
             rejected: std::array::from_fn(|i| c.rejected[i].load(Relaxed)),
             last_seen: (ns != 0).then(|| Timestamp::from_unix_nanos(ns)),
+            plots_dropped: c.plots_dropped.load(Relaxed),
+            starts_dropped: c.starts_dropped.load(Relaxed),
             rotation_period_s: match c.rotation_period_bits.load(Relaxed) {
                 0 => None,
                 b => Some(f64::from_bits(b)),
@@ -245,6 +256,8 @@ impl Metrics {
             t.received += s.received;
             t.accepted += s.accepted;
             t.processed += s.processed;
+            t.plots_dropped += s.plots_dropped;
+            t.starts_dropped += s.starts_dropped;
             for (a, b) in t.rejected.iter_mut().zip(s.rejected) {
                 *a += b;
             }
@@ -313,6 +326,8 @@ impl Metrics {
         counter(&mut o, "skerry_records_received_total", "Feed records received, by the sensor they named.", &|s| s.received);
         counter(&mut o, "skerry_records_accepted_total", "Records that passed the ingest checks.", &|s| s.accepted);
         counter(&mut o, "skerry_records_processed_total", "Records handed to the tracking engine.", &|s| s.processed);
+        counter(&mut o, "skerry_plots_dropped_total", "Plots the engine dropped because their batch already held tracking.max_plots_per_batch plots.", &|s| s.plots_dropped);
+        counter(&mut o, "skerry_track_starts_dropped_total", "Plots that would have started a tentative track, dropped because their batch had started tracking.max_new_tracks_per_batch already.", &|s| s.starts_dropped);
         let _ = writeln!(o, "# HELP skerry_records_rejected_total Records rejected, by sensor and reason.\n# TYPE skerry_records_rejected_total counter");
         for ((_, n), s) in names.iter().zip(&snaps) {
             for (k, v) in REASONS.iter().zip(s.rejected) {

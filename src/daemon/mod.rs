@@ -58,6 +58,7 @@ use crate::feed::nmea::AisDecoder;
 use crate::feed::{Screen, SensorId};
 use crate::reorder::{Reorder, ReorderConfig};
 use crate::snapshot::{FeedKey, Fingerprint, RestoreReport, SnapshotDir};
+use crate::time::Timestamp;
 use clock::DaemonClock;
 use engine_task::{EngineTask, Snapshots};
 use ingest::{AllowRange, IngestContext, IngestService, LogLimiter};
@@ -434,6 +435,10 @@ async fn run_from<T: Tracker>(
     // Reorder → engine: bounded; the reorder task waits on it, which backs
     // up into the ingest queue when the engine falls behind.
     let (batch_tx, batch_rx) = mpsc::channel(s.engine_queue);
+    // Engine → reorder: the feed time the engine waits for, so that the
+    // reorder task releases up to it on time (a watch: only the latest
+    // value matters).
+    let (due_tx, due_rx) = tokio::sync::watch::channel(None);
     // Subscription requests to the engine task, which owns the picture.
     let (control_tx, control_rx) = mpsc::channel(64);
     // The engine task is done: the servers may close.
@@ -463,8 +468,8 @@ async fn run_from<T: Tracker>(
     }
     ingest_tasks.close();
 
-    // The reorder task ticks often enough to release a quiet feed close
-    // to when it is due, and no more than 100 times a second.
+    // The reorder task wakes when a release is due; this tick is only its
+    // backstop (see sequencer.rs), at most 100 times a second.
     let tick = Duration::from_secs_f64((s.reorder_window_s / 10.0).clamp(0.01, 0.1));
     tasks.spawn(
         Sequencer {
@@ -474,8 +479,10 @@ async fn run_from<T: Tracker>(
             metrics: metrics.clone(),
             clock,
             tick,
+            engine_due: due_rx,
             cancel: shutdown.clone(),
             ingest: ingest_tasks.clone(),
+            last_pop: Timestamp::default(),
         }
         .run(),
     );
@@ -495,6 +502,8 @@ async fn run_from<T: Tracker>(
             control: control_rx,
             publisher: Publisher::new(s.subscriber_queue, s.max_subscribers, Some(metrics.clone())),
             metrics: metrics.clone(),
+            due: due_tx,
+            live_at: None,
         }
         .run(),
     );
@@ -511,7 +520,14 @@ async fn run_from<T: Tracker>(
         .add_service(v1::monitor_server::MonitorServer::new(grpc::MonitorService { metrics: metrics.clone(), clock, interval_s: s.health_interval_s, cancel: shutdown.clone() }))
         .add_service(health_service)
         .add_service(reflection)
-        .serve_with_incoming_shutdown(tonic::transport::server::TcpIncoming::from(listeners.grpc), drained.clone().cancelled_owned());
+        .serve_with_incoming_shutdown(
+            // Nagle's algorithm off: a picture update is a small write that
+            // must leave at once, not wait for the client's delayed ACK
+            // (tens of ms). Given our own listener, tonic leaves the
+            // socket option unset unless asked.
+            tonic::transport::server::TcpIncoming::from(listeners.grpc).with_nodelay(Some(true)),
+            drained.clone().cancelled_owned(),
+        );
     let flush = Duration::from_secs_f64(s.shutdown_flush_s);
     let flush_deadline = drained.clone();
     let grpc_task = tokio::spawn(async move {

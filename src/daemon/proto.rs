@@ -261,6 +261,8 @@ pub fn track_to_proto(t: &TrackRecord) -> v1::TrackRecord {
         ship_type: t.ship_type.map(u32::from),
         length_m: t.length_m,
         beam_m: t.beam_m,
+        // As in the JSON record: present only when set.
+        identity_conflict: t.identity_conflict.then_some(true),
     }
 }
 
@@ -301,8 +303,7 @@ pub fn track_from_proto(t: &v1::TrackRecord) -> Result<TrackRecord, TrackConvert
         ship_type: t.ship_type.and_then(|v| u8::try_from(v).ok()),
         length_m: t.length_m,
         beam_m: t.beam_m,
-        // Not carried by the protobuf record (version 1 has no field for it).
-        identity_conflict: false,
+        identity_conflict: t.identity_conflict.unwrap_or(false),
     })
 }
 
@@ -388,5 +389,28 @@ mod tests {
         let back = track_from_proto(&track_to_proto(&r)).unwrap();
         assert_eq!(back, r);
         assert_eq!(back.to_json(), line);
+    }
+
+    /// `identity_conflict` survives JSON → protobuf → JSON, and travels as
+    /// field 15: by the protobuf encoding rules (protobuf.dev, "Encoding":
+    /// a field's tag is `(field_number << 3) | wire_type`, a bool is a
+    /// varint, wire type 0) the bytes `0x78 0x01`, absent when false as
+    /// the JSON field is.
+    #[test]
+    fn identity_conflict_round_trips() {
+        let plain = r#"{"type":"track","time":"2026-05-14T06:00:02.125Z","track":12,"status":"confirmed","lat_deg":56.4512346,"lon_deg":7.3500000,"east_m":0.00,"north_m":1234.57,"vel_east_mps":3.000,"vel_north_mps":-4.000,"speed_kn":9.72,"course_deg":143.13,"pos_cov_m2":[[100.00,2.50],[2.50,80.00]],"sensors":["ais"],"identity":"235000001"}"#;
+        let flagged = format!("{},\"identity_conflict\":true}}", &plain[..plain.len() - 1]);
+        for (line, set) in [(plain.to_string(), false), (flagged, true)] {
+            let r = TrackRecord::from_json(&line).unwrap().unwrap();
+            assert_eq!(r.identity_conflict, set);
+            let pb = track_to_proto(&r);
+            assert_eq!(pb.identity_conflict, set.then_some(true));
+            let bytes = prost::Message::encode_to_vec(&pb);
+            let back = track_from_proto(&<v1::TrackRecord as prost::Message>::decode(bytes.as_slice()).unwrap()).unwrap();
+            assert_eq!(back, r);
+            assert_eq!(back.to_json(), line);
+            // Field 15 comes last in field order: the final two bytes.
+            assert_eq!(bytes.ends_with(&[0x78, 0x01]), set, "{bytes:02x?}");
+        }
     }
 }

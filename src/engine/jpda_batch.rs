@@ -42,7 +42,8 @@
 //!   covariance grows towards the prediction's) and writes a record.
 //! - *New tracks.* A plot whose total association probability to existing
 //!   tracks is below 0.5, and that is not inside the gate of a firm track,
-//!   starts a tentative track (as with GNN: a plot in a firm track's gate
+//!   starts a tentative track (at most `tracking.max_new_tracks_per_batch`
+//!   per batch, in time order; the rest are counted as dropped starts) (as with GNN: a plot in a firm track's gate
 //!   is more likely a split plot or multipath echo — common practice) —
 //!   unless a coasting track with no plot in its gate in this batch takes
 //!   it through its manoeuvre gate (the GNN path's second chance).
@@ -209,10 +210,10 @@ pub(super) struct Jpda {
 }
 
 impl Jpda {
-    pub(super) fn new(max_events: u64) -> Self {
+    pub(super) fn new(max_events: u64, prune: bool) -> Self {
         Jpda {
             max_events,
-            prune: true,
+            prune,
             pregate: true,
             ..Default::default()
         }
@@ -229,9 +230,9 @@ fn find(parent: &mut [u32], mut a: u32) -> u32 {
 }
 
 impl Engine {
-    /// Chooses plain JPDA (`false`) or the JPDA* pruning (`true`, the
-    /// default) for exact enumeration. For experiments: the coalescence
-    /// comparison in tests/jpda_close_pass.rs.
+    /// Chooses plain JPDA (`false`) or the JPDA* pruning (`true`) for
+    /// exact enumeration, overriding `tracking.jpda_pruning` (the
+    /// coalescence comparison in tests/jpda_close_pass.rs uses both).
     pub fn set_jpda_pruning(&mut self, on: bool) {
         self.jpda.prune = on;
     }
@@ -267,6 +268,7 @@ impl Engine {
         let batch = std::mem::take(&mut self.batch);
         self.batch_serial += 1;
         self.stats.batches += 1;
+        self.batch_starts = 0;
         let serial = self.batch_serial;
         let sensor = batch.sensor;
         let model = &self.models[sensor as usize];
@@ -661,6 +663,9 @@ impl Engine {
                     self.stats.plots_associated += 1;
                     continue;
                 }
+            }
+            if !self.may_start(sensor) {
+                continue;
             }
             let idx = self.new_track(&plot.z, &plot.r, plot.det.time, sensor);
             let t = &self.tracks[idx as usize];

@@ -14,7 +14,8 @@
 //!
 //! ## How a scan is processed
 //! Plots of one radar are gathered into small batches: consecutive plots of
-//! the same sensor within 1/16 of its scan period (a sector of about 22°).
+//! the same sensor within `tracking.batch_scan_fraction` of its scan
+//! period (default 1/16: a sector of about 22°).
 //! A batch closes when a record of another sensor or a later time arrives,
 //! on the sensor's `scan_end`, or when [`Engine::advance`] passes its end.
 //! Each batch is associated by global nearest neighbour: every plot is
@@ -35,6 +36,7 @@
 //! result does not depend on when the daemon's clock ticks.
 
 pub mod assign;
+mod bound;
 pub mod filter;
 pub mod imm;
 pub mod jpda;
@@ -84,6 +86,19 @@ pub struct EngineStats {
     pub reports: u64,
     pub identity_conflicts: u64,
     pub batches: u64,
+    /// Plots that would have started a tentative track but found the
+    /// batch's `tracking.max_new_tracks_per_batch` spent.
+    pub starts_dropped: u64,
+    /// Plots dropped because their batch held `tracking.max_plots_per_batch`.
+    pub plots_dropped: u64,
+}
+
+/// What one sensor's overload limits dropped (`tracking.max_plots_per_batch`,
+/// `tracking.max_new_tracks_per_batch`).
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+pub struct Dropped {
+    pub plots: u64,
+    pub starts: u64,
 }
 
 /// Grid cell edge (m). A track is found for any plot within one cell of
@@ -102,8 +117,6 @@ const SECOND_CHANCE_SCALE: f64 = 4.0;
 /// fast boat's hard turn (common practice).
 const MAX_TURN_RATE: f64 = 6.0 * std::f64::consts::PI / 180.0;
 
-/// Batches span at most this fraction of the sensor's scan period.
-const BATCH_FRACTION: f64 = 1.0 / 16.0;
 
 /// Initial turn-rate uncertainty of a new track: 1.5°/s (1 sigma), about
 /// half the rate of a fast boat's hard turn (common practice).
@@ -140,7 +153,10 @@ struct Scratch {
     row_to_col: Vec<Option<u32>>,
     near_firm: Vec<bool>,
     col_taken: Vec<bool>,
+    /// Scratch of `bound::prune_pairs`.
+    prune: bound::PruneScratch,
 }
+
 
 pub struct Engine {
     site: LocalFrame,
@@ -184,6 +200,17 @@ pub struct Engine {
     scratch: Scratch,
     /// `tracking.association`: which `close_batch` runs.
     association: Association,
+    /// `tracking.batch_scan_fraction`: a batch spans at most this fraction
+    /// of its sensor's scan period.
+    batch_fraction: f64,
+    /// `tracking.max_new_tracks_per_batch`, and the starts made in the
+    /// batch being closed.
+    max_starts: u32,
+    batch_starts: u32,
+    /// `tracking.max_plots_per_batch`.
+    max_plots: usize,
+    /// What the two caps dropped, by sensor.
+    dropped: Vec<Dropped>,
     /// JPDA settings and scratch (jpda_batch.rs).
     jpda: jpda_batch::Jpda,
     /// Candidate tracks of a transponder report (identity.rs).
@@ -352,7 +379,12 @@ impl Engine {
             assigner: SparseAssigner::new(),
             scratch: Scratch::default(),
             association: t.association,
-            jpda: jpda_batch::Jpda::new(t.jpda_max_events),
+            batch_fraction: t.batch_scan_fraction,
+            max_starts: t.max_new_tracks_per_batch,
+            batch_starts: 0,
+            max_plots: t.max_plots_per_batch as usize,
+            dropped: vec![Dropped::default(); cfg.sensors.len()],
+            jpda: jpda_batch::Jpda::new(t.jpda_max_events, t.jpda_pruning),
             report_cand: Vec::new(),
         })
     }
@@ -409,6 +441,21 @@ impl Engine {
         self.sweep_until(now, out);
     }
 
+    /// The earliest feed time `t` at which [`Engine::advance`]`(t)` has
+    /// work to do: just past the open batch's span (it closes then), or
+    /// else the next whole second of the timeout checks. A live driver
+    /// can advance the engine as soon as its feed reaches that time
+    /// instead of polling; the result is the same either way.
+    pub fn next_due(&self) -> Option<Timestamp> {
+        if !self.batch.plots.is_empty() {
+            // advance closes once `now - first > span` in seconds: one
+            // nanosecond past the span, rounded up.
+            let span_ns = (self.batch_span(self.batch.sensor) * 1e9).ceil() as i64;
+            return Some(Timestamp::from_unix_nanos(self.batch.first.unix_nanos() + span_ns + 1));
+        }
+        self.next_sweep
+    }
+
     /// End of the feed: process everything held back.
     pub fn finish(&mut self, out: &mut Vec<TrackRecord>) {
         if !self.batch.plots.is_empty() {
@@ -429,18 +476,51 @@ impl Engine {
         s
     }
 
+    /// What the overload limits dropped so far, by sensor (indexed as the
+    /// configuration's sensors).
+    pub fn dropped(&self) -> &[Dropped] {
+        &self.dropped
+    }
+
+    /// Whether the batch being closed may start one more tentative track
+    /// (`tracking.max_new_tracks_per_batch`); a refusal is counted. The
+    /// cap bounds a batch's work however heavy the clutter: each start
+    /// costs a filter, a track-table entry and a track record now, and
+    /// gating work in every later scan.
+    fn may_start(&mut self, sensor: SensorId) -> bool {
+        if self.batch_starts < self.max_starts {
+            self.batch_starts += 1;
+            return true;
+        }
+        self.stats.starts_dropped += 1;
+        if let Some(d) = self.dropped.get_mut(sensor as usize) {
+            d.starts += 1;
+        }
+        false
+    }
+
     /// Number of live tracks.
     pub fn live_tracks(&self) -> usize {
         self.tracks.len()
     }
 
     fn batch_span(&self, sensor: SensorId) -> f64 {
-        self.models[sensor as usize].scan_period_s * BATCH_FRACTION
+        self.models[sensor as usize].scan_period_s * self.batch_fraction
     }
 
     fn add_plot(&mut self, d: &Detection) {
         let m = &self.models[d.sensor as usize];
         let Some(radar) = &m.radar else { return };
+        // Overload protection: a batch holds at most max_plots plots, so
+        // its gating and association work stay bounded however heavy the
+        // clutter (the later plots of a full batch are dropped, counted).
+        if self.batch.plots.len() >= self.max_plots {
+            self.stats.plots_dropped += 1;
+            if let Some(x) = self.dropped.get_mut(d.sensor as usize) {
+                x.plots += 1;
+            }
+            return;
+        }
         let (z, r) = radar.convert(d.range_m, d.bearing_deg.to_radians(), m.sigma_r_m, m.sigma_b_rad);
         if !(z.x.is_finite() && z.y.is_finite()) {
             return;
@@ -581,6 +661,7 @@ impl Engine {
         let batch = std::mem::take(&mut self.batch);
         self.batch_serial += 1;
         self.stats.batches += 1;
+        self.batch_starts = 0;
         let serial = self.batch_serial;
         let sensor = batch.sensor;
         let model = &self.models[sensor as usize];
@@ -662,6 +743,7 @@ impl Engine {
                 sc.pairs.push((row as u32, col as u32, cost));
             }
         }
+        bound::prune_pairs(&mut sc.pairs, sc.col_track.len(), &mut sc.prune);
         sc.row_alone.clear();
         sc.row_alone.resize(batch.plots.len(), 0.0);
         sc.col_alone.clear();
@@ -714,6 +796,9 @@ impl Engine {
                         self.stats.plots_associated += 1;
                         continue;
                     }
+                }
+                if !self.may_start(sensor) {
+                    continue;
                 }
                 let idx = self.new_track(&plot.z, &plot.r, plot.det.time, sensor);
                 let t = &self.tracks[idx as usize];
@@ -780,11 +865,21 @@ impl Engine {
         if t < next {
             return;
         }
-        // Sweep once, at the latest whole second reached: the checks are
-        // monotone in time, so skipped seconds would find nothing more.
-        let at = Timestamp::from_unix_nanos(t.unix_nanos().div_euclid(SEC) * SEC);
-        self.next_sweep = Some(Timestamp::from_unix_nanos(at.unix_nanos() + SEC));
-        self.sweep(at, out);
+        // Every whole second in turn, not only the latest reached: a track
+        // that times out in a gap between records ends at the first second
+        // past its limit, however the gap is crossed (by the next record
+        // offline, by `advance` calls live). With no track left there is
+        // nothing to check and the gap is skipped.
+        let last = t.unix_nanos().div_euclid(SEC) * SEC;
+        let mut at = next.unix_nanos();
+        while at <= last {
+            self.sweep(Timestamp::from_unix_nanos(at), out);
+            if self.tracks.is_empty() {
+                break;
+            }
+            at += SEC;
+        }
+        self.next_sweep = Some(Timestamp::from_unix_nanos(last + SEC));
     }
 
     fn sweep(&mut self, at: Timestamp, out: &mut Vec<TrackRecord>) {

@@ -62,6 +62,10 @@ pub struct EngineState {
     jpda_prune: bool,
     jpda_pregate: bool,
     jpda_counters: JpdaCounters,
+    /// Tentative-track starts made by the open batch (its cap).
+    batch_starts: u32,
+    /// What the overload limits dropped, by sensor.
+    dropped: Vec<Dropped>,
 }
 
 /// Why a state does not fit the engine a configuration builds.
@@ -126,6 +130,11 @@ impl Engine {
             association: _,
             jpda,
             report_cand: _,
+            batch_fraction: _,
+            max_starts: _,
+            batch_starts,
+            max_plots: _,
+            dropped,
         } = self;
         let mut grid: Vec<((i32, i32), Vec<u32>)> = grid.iter().map(|(c, v)| (*c, v.clone())).collect();
         grid.sort_unstable_by_key(|(c, _)| *c);
@@ -163,6 +172,8 @@ impl Engine {
             jpda_prune: jpda.prune,
             jpda_pregate: jpda.pregate,
             jpda_counters: jpda.counters,
+            batch_starts: *batch_starts,
+            dropped: dropped.clone(),
         }
     }
 
@@ -256,6 +267,11 @@ impl Engine {
         e.jpda.prune = state.jpda_prune;
         e.jpda.pregate = state.jpda_pregate;
         e.jpda.counters = state.jpda_counters;
+        if state.dropped.len() != n_sensors {
+            return bad(format!("{} sensors in the dropped counts, {} configured", state.dropped.len(), n_sensors));
+        }
+        e.batch_starts = state.batch_starts;
+        e.dropped = state.dropped;
         Ok(e)
     }
 
