@@ -392,10 +392,10 @@ mod tests {
     }
 
     /// `identity_conflict` survives JSON → protobuf → JSON, and travels as
-    /// field 15: by the protobuf encoding rules (protobuf.dev, "Encoding":
-    /// a field's tag is `(field_number << 3) | wire_type`, a bool is a
-    /// varint, wire type 0) the bytes `0x78 0x01`, absent when false as
-    /// the JSON field is.
+    /// field 19: by the protobuf encoding rules (protobuf.dev, "Encoding":
+    /// a field's tag is `(field_number << 3) | wire_type` as a varint, a
+    /// bool is a varint, wire type 0) the tag 152 = varint `0x98 0x01`,
+    /// then `0x01`; absent when false, as the JSON field is.
     #[test]
     fn identity_conflict_round_trips() {
         let plain = r#"{"type":"track","time":"2026-05-14T06:00:02.125Z","track":12,"status":"confirmed","lat_deg":56.4512346,"lon_deg":7.3500000,"east_m":0.00,"north_m":1234.57,"vel_east_mps":3.000,"vel_north_mps":-4.000,"speed_kn":9.72,"course_deg":143.13,"pos_cov_m2":[[100.00,2.50],[2.50,80.00]],"sensors":["ais"],"identity":"235000001"}"#;
@@ -409,8 +409,8 @@ mod tests {
             let back = track_from_proto(&<v1::TrackRecord as prost::Message>::decode(bytes.as_slice()).unwrap()).unwrap();
             assert_eq!(back, r);
             assert_eq!(back.to_json(), line);
-            // Field 15 comes last in field order: the final two bytes.
-            assert_eq!(bytes.ends_with(&[0x78, 0x01]), set, "{bytes:02x?}");
+            // Field 19 comes last in field order: the final three bytes.
+            assert_eq!(bytes.ends_with(&[0x98, 0x01, 0x01]), set, "{bytes:02x?}");
         }
     }
 }
