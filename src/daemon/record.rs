@@ -513,8 +513,10 @@ impl Writer {
                 }
             }
             Err(f) => {
-                // Whole lines before the fault are in the file.
-                let done = self.ends.partition_point(|&e| e <= f.written) as u64;
+                // Whole lines before the fault are in the file; so is a
+                // line that lacks only its newline (the next write, or a
+                // reader at the end of the file, completes it).
+                let done = self.ends.partition_point(|&e| e <= f.written + 1) as u64;
                 st.recorded.fetch_add(done, Relaxed);
                 st.write_error.fetch_add(n - done, Relaxed);
                 self.count_bytes(f.written as u64);
