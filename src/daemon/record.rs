@@ -69,9 +69,14 @@ use std::sync::atomic::Ordering::Relaxed;
 use std::sync::{Arc, Condvar, Mutex, MutexGuard, PoisonError};
 use std::time::Duration;
 
-/// How long the writer lets a burst collect after the first record wakes
-/// it: about 50 writes a second at any rate, instead of one per datagram.
-pub const LINGER: Duration = Duration::from_millis(20);
+/// How long the writer lets records collect between takes: at most about
+/// 10 writes (and wake-ups) a second at any rate, instead of one per
+/// datagram. A crash of the process loses at most this much of the
+/// recording beyond what the fsync interval already risks; each wake-up
+/// of the writer thread costs more than formatting a thousand lines, so
+/// 20 ms instead measured a few per cent more daemon CPU at 50 000
+/// plots/s (BENCHMARKS-record.md).
+pub const LINGER: Duration = Duration::from_millis(100);
 
 /// How often an idle writer looks at the clock (hour change, fsync, stop).
 const TICK: Duration = Duration::from_millis(100);
