@@ -72,10 +72,9 @@ use std::time::Duration;
 /// How long the writer lets records collect between takes: at most about
 /// 10 writes (and wake-ups) a second at any rate, instead of one per
 /// datagram. A crash of the process loses at most this much of the
-/// recording beyond what the fsync interval already risks; each wake-up
-/// of the writer thread costs more than formatting a thousand lines, so
-/// 20 ms instead measured a few per cent more daemon CPU at 50 000
-/// plots/s (BENCHMARKS-record.md).
+/// recording beyond what the fsync interval already risks. Wake-ups of
+/// the writer thread are dear: at 50 000 plots/s, 20 ms cost the daemon
+/// about +12 % CPU against +8 % for 100 ms (BENCHMARKS-record.md).
 pub const LINGER: Duration = Duration::from_millis(100);
 
 /// How often an idle writer looks at the clock (hour change, fsync, stop).
