@@ -147,7 +147,7 @@ async fn one_run(lines: &[String], work: &Path, record: bool) -> Run {
 
 fn main() {
     let quick = !std::env::args().any(|a| a == "--bench");
-    let (plots, pairs) = if quick { (20_000, 1) } else { (500_000, 5) };
+    let (plots, pairs) = if quick { (20_000, 1) } else { (500_000, 8) };
     let lines = plot_lines(plots, Timestamp::parse_rfc3339("2026-05-14T06:00:00Z").unwrap());
     let work = tempfile::tempdir_in(env!("CARGO_TARGET_TMPDIR")).unwrap();
     let rt = tokio::runtime::Builder::new_current_thread().enable_all().build().unwrap();

@@ -74,64 +74,207 @@ pub fn format_line(rec: &Record, sensors: &SensorTable, received: Timestamp, out
 
 /// Writes recording lines byte for byte as [`format_line`] does, at a
 /// fraction of the cost, for the writer's hot path: sensor names are
-/// escaped once, the date and time of day are formatted once per second
-/// (consecutive records share it), and numbers go through serde_json's
-/// writer straight into the buffer (the same shortest round-trip form,
-/// without a string per number). No allocation once the buffer has grown.
+/// escaped once, a timestamp's text is kept for the next record with the
+/// same one (the records of a datagram share their `received`) and its
+/// date and time of day for the next in the same second, short decimals
+/// are written directly (see [`short_decimal`]) and other numbers by
+/// serde_json; each line is assembled on the stack with fixed-size copies
+/// and appended in one piece. No allocation once `out` has grown.
 pub struct LineWriter {
-    names: Vec<Vec<u8>>,
+    names: Vec<Text>,
     time: SecondText,
     received: SecondText,
+    /// The stack-sized buffer of [`Line`], kept (not zeroed per line).
+    buf: Box<[u8; LINE]>,
 }
 
-/// `YYYY-MM-DDTHH:MM:SS` of the last second formatted.
+/// Most bytes of a short text kept padded for fixed-size copies.
+const PAD: usize = 32;
+
+/// A pre-formatted piece: padded when short, else on the heap.
+enum Text {
+    Short([u8; PAD], usize),
+    Long(Vec<u8>),
+}
+
+impl Text {
+    fn new(b: &[u8]) -> Text {
+        if b.len() <= PAD {
+            let mut a = [0u8; PAD];
+            a[..b.len()].copy_from_slice(b);
+            Text::Short(a, b.len())
+        } else {
+            Text::Long(b.to_vec())
+        }
+    }
+}
+
+/// Bytes of a line assembled on the stack before they go to `out`.
+const LINE: usize = 512;
+
+/// A line being assembled: fixed-size copies into a stack buffer, which
+/// is appended to `out` when full and at the end.
+struct Line<'a> {
+    buf: &'a mut [u8; LINE],
+    n: usize,
+    out: &'a mut Vec<u8>,
+}
+
+impl Line<'_> {
+    /// Makes room for `k` more bytes (k ≤ LINE).
+    #[inline(always)]
+    fn room(&mut self, k: usize) {
+        if self.n + k > LINE {
+            self.out.extend_from_slice(&self.buf[..self.n]);
+            self.n = 0;
+        }
+    }
+
+    #[inline(always)]
+    fn lit<const N: usize>(&mut self, s: &[u8; N]) {
+        self.room(N);
+        self.buf[self.n..self.n + N].copy_from_slice(s);
+        self.n += N;
+    }
+
+    #[inline(always)]
+    fn text(&mut self, t: &Text) {
+        match t {
+            Text::Short(a, len) => {
+                self.room(PAD);
+                self.buf[self.n..self.n + PAD].copy_from_slice(a);
+                self.n += len;
+            }
+            Text::Long(v) => self.bytes(v),
+        }
+    }
+
+    fn bytes(&mut self, s: &[u8]) {
+        if s.len() > LINE {
+            self.out.extend_from_slice(&self.buf[..self.n]);
+            self.n = 0;
+            self.out.extend_from_slice(s);
+            return;
+        }
+        self.room(s.len());
+        self.buf[self.n..self.n + s.len()].copy_from_slice(s);
+        self.n += s.len();
+    }
+
+    /// The decimal digits of `x`, written in place two at a time.
+    #[inline(always)]
+    fn u64(&mut self, mut x: u64) {
+        self.room(20);
+        let len = x.checked_ilog10().map_or(1, |l| l as usize + 1);
+        let mut i = self.n + len;
+        while x >= 100 {
+            let r = (x % 100) as usize * 2;
+            x /= 100;
+            i -= 2;
+            self.buf[i] = PAIRS[r];
+            self.buf[i + 1] = PAIRS[r + 1];
+        }
+        if x >= 10 {
+            let r = x as usize * 2;
+            self.buf[i - 2] = PAIRS[r];
+            self.buf[i - 1] = PAIRS[r + 1];
+        } else {
+            self.buf[i - 1] = b'0' + x as u8;
+        }
+        self.n += len;
+    }
+
+    fn num(&mut self, v: f64) {
+        // Room for every form below: no flush in the middle of a number.
+        self.room(PAD);
+        if !short_decimal(self, v) {
+            // Records are checked finite; serde_json writes `null`
+            // otherwise, as encode_record does (at most 24 bytes).
+            let mut w: &mut [u8] = &mut self.buf[self.n..self.n + PAD];
+            let _ = serde_json::to_writer(&mut w, &v);
+            let left = w.len();
+            self.n += PAD - left;
+        }
+    }
+
+    /// A JSON string of any length, escaped by serde_json straight into
+    /// `out`.
+    fn json_str(&mut self, s: &str) {
+        self.out.extend_from_slice(&self.buf[..self.n]);
+        self.n = 0;
+        let _ = serde_json::to_writer(&mut *self.out, s);
+    }
+
+    fn finish(self) {
+        self.out.extend_from_slice(&self.buf[..self.n]);
+    }
+}
+
+/// The text of the last timestamp written, and the date and time of day
+/// of the last second.
 struct SecondText {
     sec: Option<i64>,
-    text: String,
+    /// `YYYY-MM-DDTHH:MM:SS` of `sec`.
+    prefix: String,
+    last: Option<Timestamp>,
+    /// The whole text of `last`, as `Timestamp::write_rfc3339` writes it.
+    text: Text,
 }
 
 impl SecondText {
     fn new() -> Self {
-        SecondText { sec: None, text: String::with_capacity(32) }
+        SecondText { sec: None, prefix: String::with_capacity(32), last: None, text: Text::Short([0; PAD], 0) }
     }
 
-    /// Appends `t` as `Timestamp::write_rfc3339` does.
-    fn write(&mut self, t: Timestamp, out: &mut Vec<u8>) {
+    fn get(&mut self, t: Timestamp) -> &Text {
         const NS: i64 = 1_000_000_000;
-        let sec = t.unix_nanos().div_euclid(NS);
-        if self.sec != Some(sec) {
-            self.text.clear();
-            Timestamp::from_unix_nanos(sec * NS).write_rfc3339(&mut self.text);
-            self.text.pop(); // the `Z`
-            self.sec = Some(sec);
-        }
-        out.extend_from_slice(self.text.as_bytes());
-        let ns = t.unix_nanos().rem_euclid(NS) as u32;
-        if ns != 0 {
-            let mut digits = [0u8; 9];
-            let mut v = ns;
-            for d in digits.iter_mut().rev() {
-                *d = b'0' + (v % 10) as u8;
-                v /= 10;
+        if self.last != Some(t) {
+            let sec = t.unix_nanos().div_euclid(NS);
+            if self.sec != Some(sec) {
+                self.prefix.clear();
+                Timestamp::from_unix_nanos(sec * NS).write_rfc3339(&mut self.prefix);
+                self.prefix.pop(); // the `Z`
+                self.sec = Some(sec);
             }
-            let mut n = 9;
-            while digits[n - 1] == b'0' {
-                n -= 1;
+            let mut a = [0u8; PAD];
+            let p = self.prefix.len().min(PAD - 11);
+            a[..p].copy_from_slice(&self.prefix.as_bytes()[..p]);
+            let mut n = p;
+            let mut ns = t.unix_nanos().rem_euclid(NS) as u64;
+            if ns != 0 {
+                // Nine digits with the leading zeros, less the trailing ones.
+                a[n] = b'.';
+                for i in (0..4).rev() {
+                    let r = (ns % 100) as usize * 2;
+                    ns /= 100;
+                    a[n + 2 + 2 * i] = PAIRS[r];
+                    a[n + 3 + 2 * i] = PAIRS[r + 1];
+                }
+                a[n + 1] = b'0' + ns as u8;
+                n += 10;
+                while a[n - 1] == b'0' {
+                    n -= 1;
+                }
             }
-            out.push(b'.');
-            out.extend_from_slice(&digits[..n]);
+            a[n] = b'Z';
+            self.text = Text::Short(a, n + 1);
+            self.last = Some(t);
         }
-        out.push(b'Z');
+        &self.text
     }
 }
 
-fn num(out: &mut Vec<u8>, v: f64) {
-    if !short_decimal(out, v) {
-        // Records are checked finite; serde_json writes `null` otherwise,
-        // as encode_record does.
-        let _ = serde_json::to_writer(&mut *out, &v);
+/// "00", "01", ... "99".
+const PAIRS: [u8; 200] = {
+    let mut t = [0u8; 200];
+    let mut i = 0;
+    while i < 100 {
+        t[2 * i] = b'0' + (i / 10) as u8;
+        t[2 * i + 1] = b'0' + (i % 10) as u8;
+        i += 1;
     }
-}
+    t
+};
 
 /// Writes `v` when it is the double nearest to m / 10^k for an integer
 /// m < 10^15 and k ≤ 4 (a radar's range to the decimetre, a bearing to
@@ -142,7 +285,8 @@ fn num(out: &mut Vec<u8>, v: f64) {
 /// decimal), and the smallest such k leaves no trailing zero. Within
 /// 1e-4 ≤ |v| < 1e15 serde_json writes plain decimals, `.0` after a
 /// whole number. Returns false, writing nothing, for any other value.
-fn short_decimal(out: &mut Vec<u8>, v: f64) -> bool {
+/// The caller has made room for 32 bytes.
+fn short_decimal(line: &mut Line<'_>, v: f64) -> bool {
     const P10: [f64; 5] = [1.0, 10.0, 100.0, 1000.0, 10000.0];
     let a = v.abs();
     if !(1e-4..1e15).contains(&a) {
@@ -150,33 +294,35 @@ fn short_decimal(out: &mut Vec<u8>, v: f64) -> bool {
     }
     for (k, p) in P10.iter().enumerate() {
         // Nearest integer (a > 0; no libm call on a baseline x86-64).
-        let m = (a * p + 0.5) as u64 as f64;
-        if m >= 1e15 {
+        let m = (a * p + 0.5) as u64;
+        if m >= 1_000_000_000_000_000 {
             return false;
         }
         // Exact operands, one correctly rounded division: the double
         // nearest to m / 10^k.
-        if m / p == a {
-            let mut digits = [0u8; 20];
-            let mut n = 0;
-            let mut x = m as u64;
-            while x > 0 || n <= k {
-                digits[n] = b'0' + (x % 10) as u8;
-                x /= 10;
-                n += 1;
-            }
+        if m as f64 / p == a {
             if v < 0.0 {
-                out.push(b'-');
+                line.lit(b"-");
             }
-            for i in (k..n).rev() {
-                out.push(digits[i]);
-            }
-            out.push(b'.');
+            let len = m.checked_ilog10().map_or(1, |l| l as usize + 1);
             if k == 0 {
-                out.push(b'0');
-            }
-            for i in (0..k).rev() {
-                out.push(digits[i]);
+                line.u64(m);
+                line.lit(b".0");
+            } else if len > k {
+                line.u64(m);
+                // Move the last k digits one place on, for the point.
+                let end = line.n;
+                for i in (end - k..end).rev() {
+                    line.buf[i + 1] = line.buf[i];
+                }
+                line.buf[end - k] = b'.';
+                line.n += 1;
+            } else {
+                line.lit(b"0.");
+                for _ in len..k {
+                    line.lit(b"0");
+                }
+                line.u64(m);
             }
             return true;
         }
@@ -184,91 +330,103 @@ fn short_decimal(out: &mut Vec<u8>, v: f64) -> bool {
     false
 }
 
-fn int(out: &mut Vec<u8>, v: u64) {
-    let _ = serde_json::to_writer(&mut *out, &v);
-}
-
 impl LineWriter {
     pub fn new(sensors: &SensorTable) -> LineWriter {
-        let names = sensors.ids().map(|i| serde_json::to_vec(sensors.name(i)).unwrap_or_else(|_| b"\"?\"".to_vec())).collect();
-        LineWriter { names, time: SecondText::new(), received: SecondText::new() }
+        let names = sensors.ids().map(|i| Text::new(&serde_json::to_vec(sensors.name(i)).unwrap_or_else(|_| b"\"?\"".to_vec()))).collect();
+        LineWriter { names, time: SecondText::new(), received: SecondText::new(), buf: Box::new([0; LINE]) }
     }
 
     /// Appends the recording line of `rec`, received at `received`, with
     /// its newline.
     pub fn line(&mut self, rec: &Record, received: Timestamp, out: &mut Vec<u8>) {
-        out.extend_from_slice(b"{\"type\":\"");
-        out.extend_from_slice(rec.type_name().as_bytes());
-        out.extend_from_slice(b"\",\"sensor\":");
-        match self.names.get(rec.sensor() as usize) {
-            Some(n) => out.extend_from_slice(n),
-            None => out.extend_from_slice(b"\"?\""),
+        let mut l = Line { buf: &mut self.buf, n: 0, out };
+        l.lit(b"{\"type\":\"");
+        match rec {
+            Record::Detection(_) => l.lit(b"detection"),
+            Record::ScanEnd(_) => l.lit(b"scan_end"),
+            Record::Report(_) => l.lit(b"report"),
         }
-        out.extend_from_slice(b",\"time\":\"");
-        self.time.write(rec.time(), out);
-        out.push(b'"');
-        let field = |out: &mut Vec<u8>, k: &[u8], v: f64| {
-            out.extend_from_slice(b",\"");
-            out.extend_from_slice(k);
-            out.extend_from_slice(b"\":");
-            num(out, v);
-        };
+        l.lit(b"\",\"sensor\":");
+        match self.names.get(rec.sensor() as usize) {
+            Some(n) => l.text(n),
+            None => l.lit(b"\"?\""),
+        }
+        l.lit(b",\"time\":\"");
+        l.text(self.time.get(rec.time()));
+        l.lit(b"\"");
         match rec {
             Record::Detection(d) => {
                 if let Some(scan) = d.scan {
-                    out.extend_from_slice(b",\"scan\":");
-                    int(out, scan);
+                    l.lit(b",\"scan\":");
+                    l.u64(scan);
                 }
-                field(out, b"range_m", d.range_m);
-                field(out, b"bearing_deg", d.bearing_deg);
+                l.lit(b",\"range_m\":");
+                l.num(d.range_m);
+                l.lit(b",\"bearing_deg\":");
+                l.num(d.bearing_deg);
                 if let Some(v) = d.radial_speed_mps {
-                    field(out, b"radial_speed_mps", v);
+                    l.lit(b",\"radial_speed_mps\":");
+                    l.num(v);
                 }
                 if let Some(v) = d.snr_db {
-                    field(out, b"snr_db", v);
+                    l.lit(b",\"snr_db\":");
+                    l.num(v);
                 }
             }
             Record::ScanEnd(e) => {
-                out.extend_from_slice(b",\"scan\":");
-                int(out, e.scan);
+                l.lit(b",\"scan\":");
+                l.u64(e.scan);
                 if let Some([a, b]) = e.sector_deg {
-                    out.extend_from_slice(b",\"sector_deg\":[");
-                    num(out, a);
-                    out.push(b',');
-                    num(out, b);
-                    out.push(b']');
+                    l.lit(b",\"sector_deg\":[");
+                    l.num(a);
+                    l.lit(b",");
+                    l.num(b);
+                    l.lit(b"]");
                 }
             }
             Record::Report(r) => {
-                out.extend_from_slice(b",\"id\":");
-                let _ = serde_json::to_writer(&mut *out, &*r.id);
-                field(out, b"lat_deg", r.lat_deg);
-                field(out, b"lon_deg", r.lon_deg);
-                for (k, v) in [(&b"sog_kn"[..], r.sog_kn), (b"cog_deg", r.cog_deg), (b"heading_deg", r.heading_deg)] {
-                    if let Some(v) = v {
-                        field(out, k, v);
-                    }
+                l.lit(b",\"id\":");
+                l.json_str(&r.id);
+                l.lit(b",\"lat_deg\":");
+                l.num(r.lat_deg);
+                l.lit(b",\"lon_deg\":");
+                l.num(r.lon_deg);
+                if let Some(v) = r.sog_kn {
+                    l.lit(b",\"sog_kn\":");
+                    l.num(v);
+                }
+                if let Some(v) = r.cog_deg {
+                    l.lit(b",\"cog_deg\":");
+                    l.num(v);
+                }
+                if let Some(v) = r.heading_deg {
+                    l.lit(b",\"heading_deg\":");
+                    l.num(v);
                 }
                 if let Some(v) = &r.vessel {
                     if let Some(n) = &v.name {
-                        out.extend_from_slice(b",\"name\":");
-                        let _ = serde_json::to_writer(&mut *out, &**n);
+                        l.lit(b",\"name\":");
+                        l.json_str(n);
                     }
                     if let Some(t) = v.ship_type {
-                        out.extend_from_slice(b",\"ship_type\":");
-                        out.extend_from_slice(t.to_string().as_bytes());
+                        l.lit(b",\"ship_type\":");
+                        l.u64(u64::from(t));
                     }
-                    for (k, x) in [(&b"length_m"[..], v.length_m), (b"beam_m", v.beam_m)] {
-                        if let Some(x) = x {
-                            field(out, k, x);
-                        }
+                    if let Some(x) = v.length_m {
+                        l.lit(b",\"length_m\":");
+                        l.num(x);
+                    }
+                    if let Some(x) = v.beam_m {
+                        l.lit(b",\"beam_m\":");
+                        l.num(x);
                     }
                 }
             }
         }
-        out.extend_from_slice(b",\"received\":\"");
-        self.received.write(received, out);
-        out.extend_from_slice(b"\"}\n");
+        l.lit(b",\"received\":\"");
+        l.text(self.received.get(received));
+        l.lit(b"\"}\n");
+        l.finish();
     }
 }
 
@@ -418,7 +576,7 @@ mod tests {
     fn line_writer_matches_format_line() {
         use crate::feed::{Detection, Report, ScanEnd, SensorKind};
         use rand::{Rng, SeedableRng};
-        let sensors = SensorTable::new([("north \"mast\"", SensorKind::Radar), ("ais\\1", SensorKind::Transponder)]);
+        let sensors = SensorTable::new([("north \"mast\"", SensorKind::Radar), ("ais\\1 on the long breakwater, \"east\" end", SensorKind::Transponder)]);
         let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(7);
         let mut w = LineWriter::new(&sensors);
         let num = |rng: &mut rand_chacha::ChaCha8Rng| -> f64 {
@@ -444,7 +602,7 @@ mod tests {
             let rec = match i % 3 {
                 0 => Record::Detection(Detection { sensor: 0, time, scan: rng.random_bool(0.5).then(|| rng.random()), range_m: num(&mut rng), bearing_deg: num(&mut rng), radial_speed_mps: rng.random_bool(0.5).then(|| num(&mut rng)), snr_db: rng.random_bool(0.5).then(|| num(&mut rng)) }),
                 1 => Record::ScanEnd(ScanEnd { sensor: 0, time, scan: rng.random(), sector_deg: rng.random_bool(0.5).then(|| [num(&mut rng), num(&mut rng)]) }),
-                _ => Record::Report(Report { sensor: 1, time, id: format!("23{}\"ø\\\u{1}", rng.random::<u32>()).into(), lat_deg: num(&mut rng), lon_deg: num(&mut rng), sog_kn: rng.random_bool(0.5).then(|| num(&mut rng)), cog_deg: rng.random_bool(0.5).then(|| num(&mut rng)), heading_deg: None, vessel: rng.random_bool(0.5).then(|| crate::feed::VesselInfo { name: rng.random_bool(0.7).then(|| format!("SELKIE \"{}\" ø", rng.random::<u16>()).into()), ship_type: rng.random_bool(0.7).then(|| rng.random()), length_m: rng.random_bool(0.7).then(|| num(&mut rng)), beam_m: rng.random_bool(0.7).then(|| num(&mut rng)) }.into()) }),
+                _ => Record::Report(Report { sensor: 1, time, id: if i % 97 == 2 { "ø\"".repeat(300).into() } else { format!("23{}\"ø\\\u{1}", rng.random::<u32>()).into() }, lat_deg: num(&mut rng), lon_deg: num(&mut rng), sog_kn: rng.random_bool(0.5).then(|| num(&mut rng)), cog_deg: rng.random_bool(0.5).then(|| num(&mut rng)), heading_deg: None, vessel: rng.random_bool(0.5).then(|| crate::feed::VesselInfo { name: rng.random_bool(0.7).then(|| format!("SELKIE \"{}\" ø", rng.random::<u16>()).into()), ship_type: rng.random_bool(0.7).then(|| rng.random()), length_m: rng.random_bool(0.7).then(|| num(&mut rng)), beam_m: rng.random_bool(0.7).then(|| num(&mut rng)) }.into()) }),
             };
             let mut want = String::new();
             format_line(&rec, &sensors, received, &mut want);
@@ -459,14 +617,21 @@ mod tests {
             let k = rng.random_range(0..5);
             let v = (rng.random_range(-1.0..1.0) * 10f64.powi(rng.random_range(-4..16)) * 10f64.powi(k)).round() / 10f64.powi(k);
             let mut got = Vec::new();
-            if short_decimal(&mut got, v) {
+            let mut b = [0; LINE];
+            let mut l = Line { buf: &mut b, n: 0, out: &mut got };
+            let hit = short_decimal(&mut l, v);
+            l.finish();
+            if hit {
                 taken += 1;
                 assert_eq!(std::str::from_utf8(&got).unwrap(), serde_json::to_string(&v).unwrap(), "{v:e}");
             }
         }
         assert!(taken > 100_000, "the fast path was taken {taken} times");
         let mut hit = Vec::new();
-        assert!(short_decimal(&mut hit, 12345.6) && short_decimal(&mut hit, -0.05) && short_decimal(&mut hit, 2000.0));
+        let mut b = [0; LINE];
+        let mut l = Line { buf: &mut b, n: 0, out: &mut hit };
+        assert!(short_decimal(&mut l, 12345.6) && short_decimal(&mut l, -0.05) && short_decimal(&mut l, 2000.0));
+        l.finish();
         assert_eq!(hit, b"12345.6-0.052000.0");
     }
 

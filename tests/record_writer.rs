@@ -166,3 +166,70 @@ fn fsync_follows_the_interval() {
     assert_eq!(r.syncs.load(Relaxed), 4, "more than 1 s since the last sync");
     assert_eq!(read(dir.path(), "2026-05-14T06.jsonl").lines().count(), 13);
 }
+
+/// Fails its first write after all but `short` bytes of it.
+struct CutOnce {
+    inner: FsDisk,
+    short: Option<usize>,
+}
+
+impl Disk for CutOnce {
+    fn list(&mut self) -> std::io::Result<Vec<(String, u64)>> {
+        self.inner.list()
+    }
+    fn open(&mut self, name: &str) -> std::io::Result<Opened> {
+        self.inner.open(name)
+    }
+    fn ends_with_newline(&mut self) -> std::io::Result<bool> {
+        self.inner.ends_with_newline()
+    }
+    fn write(&mut self, buf: &[u8]) -> Result<(), WriteFault> {
+        match self.short.take() {
+            Some(k) => {
+                let n = buf.len() - k;
+                self.inner.write(&buf[..n])?;
+                Err(WriteFault { written: n, error: std::io::Error::from_raw_os_error(5) })
+            }
+            None => self.inner.write(buf),
+        }
+    }
+    fn sync(&mut self) -> std::io::Result<()> {
+        self.inner.sync()
+    }
+    fn close(&mut self) -> std::io::Result<()> {
+        self.inner.close()
+    }
+    fn remove(&mut self, name: &str) -> std::io::Result<()> {
+        self.inner.remove(name)
+    }
+}
+
+#[test]
+fn a_write_cut_short_counts_the_lines_that_reached_the_file() {
+    // Two lines cut (a) just before the last newline: both are in the file
+    // (the next write adds the newline); (b) two bytes before it: the
+    // second line is torn and not recorded.
+    for (short, recorded, torn) in [(1usize, 3u64, 0usize), (2, 2, 1)] {
+        let dir = tempfile::tempdir().unwrap();
+        let cfg = config(&[("SKERRY__RECORD__DIR", dir.path().to_str().unwrap())]);
+        let metrics = Arc::new(Metrics::new(&cfg, ts("2026-05-14T06:00:00Z")));
+        let disk = CutOnce { inner: FsDisk::new(dir.path()), short: Some(short) };
+        let mut w = Writer::new(Box::new(disk), cfg.sensor_table(), WriterSettings::new(cfg.record.as_ref().unwrap(), 10.0), metrics.clone());
+        let t = ts("2026-05-14T06:00:01Z");
+        w.start(t);
+        let e = |r: f64| Entry { rec: plot(&cfg, t, r), received: t };
+        w.write(&[e(1000.0), e(1001.0)], t);
+        w.write(&[e(1002.0)], t.plus_secs(0.1));
+        w.close(t.plus_secs(0.2));
+        let m = metrics.render(t.plus_secs(1.0));
+        assert!(m.contains(&format!("skerry_recorded_total {recorded}\n")), "short {short}: {m}");
+        assert!(m.contains(&format!("skerry_not_recorded_total{{reason=\"write_error\"}} {}\n", 3 - recorded)), "short {short}: {m}");
+        let text = read(dir.path(), "2026-05-14T06.jsonl");
+        let table = cfg.sensor_table();
+        let good = text.lines().filter(|l| feed::decode_line(l.as_bytes(), &table).is_ok()).count() as u64;
+        assert_eq!(good, recorded, "{text}");
+        assert_eq!(text.lines().count() - good as usize, torn, "{text}");
+        // Recovery cleared the failure.
+        assert!(m.contains("skerry_record_failing 0\n"), "{m}");
+    }
+}

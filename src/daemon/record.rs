@@ -69,9 +69,13 @@ use std::sync::atomic::Ordering::Relaxed;
 use std::sync::{Arc, Condvar, Mutex, MutexGuard, PoisonError};
 use std::time::Duration;
 
-/// How long the writer lets a burst collect after the first record wakes
-/// it: about 50 writes a second at any rate, instead of one per datagram.
-pub const LINGER: Duration = Duration::from_millis(20);
+/// How long the writer lets records collect between takes: at most about
+/// 10 writes (and wake-ups) a second at any rate, instead of one per
+/// datagram. A crash of the process loses at most this much of the
+/// recording beyond what the fsync interval already risks. Wake-ups of
+/// the writer thread are dear: at 50 000 plots/s, 20 ms cost the daemon
+/// about +12 % CPU against +8 % for 100 ms (BENCHMARKS-record.md).
+pub const LINGER: Duration = Duration::from_millis(100);
 
 /// How often an idle writer looks at the clock (hour change, fsync, stop).
 const TICK: Duration = Duration::from_millis(100);
@@ -513,8 +517,10 @@ impl Writer {
                 }
             }
             Err(f) => {
-                // Whole lines before the fault are in the file.
-                let done = self.ends.partition_point(|&e| e <= f.written) as u64;
+                // Whole lines before the fault are in the file; so is a
+                // line that lacks only its newline (the next write, or a
+                // reader at the end of the file, completes it).
+                let done = self.ends.partition_point(|&e| e <= f.written + 1) as u64;
                 st.recorded.fetch_add(done, Relaxed);
                 st.write_error.fetch_add(n - done, Relaxed);
                 self.count_bytes(f.written as u64);
