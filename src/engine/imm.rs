@@ -349,6 +349,20 @@ impl Imm {
         for j in 0..n {
             cbar[j] = (0..n).map(|i| pi[i][j] * s.mu[i]).sum();
         }
+        out.mu = normalized(cbar, n);
+        let g0 = &s.comps[0];
+        if same && self.models[..n].iter().all(|m| m.moves_as_cv(&g0.x)) {
+            // One Gaussian that every model moves as CV does (a new
+            // track): the models differ only in their noise term.
+            let dt = if dt.is_finite() && dt > 0.0 { dt } else { 0.0 };
+            let (mean, x) = super::filter::cv_position_parts(g0, dt);
+            for j in 0..n {
+                let q = self.models[j].position_noise(dt);
+                out.x[j] = mean;
+                out.p[j] = [x[0] + q, x[1], x[2] + q];
+            }
+            return out;
+        }
         for j in 0..n {
             let mut w = [0.0; MAX_MODELS];
             for i in 0..n {
@@ -365,7 +379,6 @@ impl Imm {
             };
             (out.x[j], out.p[j]) = self.models[j].predict_position(&mixed, dt);
         }
-        out.mu = normalized(cbar, n);
         out
     }
 
@@ -574,7 +587,14 @@ mod fast_path_tests {
         let imm = Imm::vessel_default();
         let n = imm.n_models();
         for trial in 0..5_000 {
-            let g = random_gaussian(&mut rng);
+            let mut g = random_gaussian(&mut rng);
+            if trial % 2 == 0 {
+                // As a new track starts: at rest, not turning (the turn
+                // model then moves as CV does).
+                g.x[2] = 0.0;
+                g.x[3] = 0.0;
+                g.x[4] = 0.0;
+            }
             let s = imm.init(g, Some(&VESSEL_MU0));
             let dt = rng.random_range(0.0..30.0);
             let (want, got) = (imm.predict(&s, dt), imm.predict_fast(&s, dt));

@@ -245,21 +245,27 @@ impl std::hash::Hasher for CellHasher {
 /// [`imm_gate`] on the position part of a prediction (what the GNN path
 /// keeps per track and batch): the same arithmetic, so the same result.
 fn imm_gate_position(n_models: usize, pred: &imm::PositionPrediction, lead: f64, z: &Vector2<f64>, r: &Matrix2<f64>, gate_d2: f64) -> Option<f64> {
+    // The distances first: most pairs that reach this far are outside
+    // every gate, and need no logarithms.
     let mut inside = false;
-    let mut terms = [f64::NEG_INFINITY; imm::MAX_MODELS];
+    let mut inns = [None; imm::MAX_MODELS];
     for j in 0..n_models {
-        let mu = pred.mu[j];
-        if !(mu > 0.0) {
+        if !(pred.mu[j] > 0.0) {
             continue;
         }
         let (x, p) = (&pred.x[j], &pred.p[j]);
         let pos = Vector2::new(x[0] + x[2] * lead, x[1] + x[3] * lead);
-        let Some(inn) = filter::innovation_of_position(&pos, &Matrix2::new(p[0], p[1], p[1], p[2]), z, r) else { continue };
-        inside |= inn.d2 <= gate_d2;
-        terms[j] = mu.ln() + inn.log_likelihood();
+        inns[j] = filter::innovation_of_position(&pos, &Matrix2::new(p[0], p[1], p[1], p[2]), z, r);
+        inside |= inns[j].is_some_and(|i| i.d2 <= gate_d2);
     }
     if !inside {
         return None;
+    }
+    let mut terms = [f64::NEG_INFINITY; imm::MAX_MODELS];
+    for j in 0..n_models {
+        if let Some(inn) = &inns[j] {
+            terms[j] = pred.mu[j].ln() + inn.log_likelihood();
+        }
     }
     let m = terms.iter().copied().fold(f64::NEG_INFINITY, f64::max);
     Some(m + terms.iter().map(|t| (t - m).exp()).sum::<f64>().ln())
@@ -438,7 +444,7 @@ impl Engine {
     fn add_plot(&mut self, d: &Detection) {
         let m = &self.models[d.sensor as usize];
         let Some(radar) = &m.radar else { return };
-        let (z, r) = radar.convert(d.range_m, d.bearing_deg.to_radians(), m.sigma_r_m, m.sigma_b_rad);
+        let (z, r) = radar.convert_with(d.range_m, d.bearing_deg.to_radians(), m.sigma_r_m, &m.bearing_noise);
         if !(z.x.is_finite() && z.y.is_finite()) {
             return;
         }
