@@ -817,7 +817,7 @@ impl Engine {
             // Reach over the next second: drift plus a generous gate on
             // the grown position uncertainty and the widest plot error.
             let horizon = dt + 1.0;
-            let speed = g.x[2].hypot(g.x[3]) + 3.0 * (g.p[(2, 2)] + g.p[(3, 3)]).sqrt();
+            let speed = (g.x[2] * g.x[2] + g.x[3] * g.x[3]).sqrt() + 3.0 * (g.p[(2, 2)] + g.p[(3, 3)]).sqrt();
             let pos_var = g.p[(0, 0)] + g.p[(1, 1)] + horizon * horizon * (g.p[(2, 2)] + g.p[(3, 3)]) + self.max_plot_var;
             let reach = speed * horizon + (self.gate_d2 * pos_var).sqrt();
             let wide = reach > CELL_M;

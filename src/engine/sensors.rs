@@ -13,7 +13,7 @@
 use super::measure::{BearingNoise, polar_to_cartesian_with};
 use crate::config::{Config, SensorConfig};
 use crate::feed::SensorKind;
-use crate::geo::{Antenna, Geodetic, LocalFrame, euler_radius, radii_of_curvature};
+use crate::geo::{Antenna, Geodetic, LocalFrame, radii_of_curvature};
 use nalgebra::{Matrix2, Matrix3, Vector2, Vector3};
 
 /// Geometry of one radar.
@@ -41,7 +41,10 @@ impl RadarGeometry {
     /// surface point at slant range `range_m` and bearing with sine and
     /// cosine `sb`, `cb`.
     fn horizontal(&self, range_m: f64, sb: f64, cb: f64) -> (f64, f64) {
-        let r_earth = euler_radius(self.radii.0, self.radii.1, sb.atan2(cb));
+        // Euler's radius M N / (N cos² + M sin²) straight from the
+        // bearing's sine and cosine (no round trip through atan2).
+        let (m, n) = self.radii;
+        let r_earth = m * n / (n * cb * cb + m * sb * sb);
         let ra = r_earth + self.height_m;
         let rt = r_earth;
         let cos_g = ((ra * ra + rt * rt - range_m * range_m) / (2.0 * ra * rt)).clamp(-1.0, 1.0);
