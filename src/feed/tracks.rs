@@ -110,10 +110,15 @@ fn fixed(out: &mut Line<'_>, v: f64, d: u32) {
     let mut buf = [b'0'; 32];
     let mut i = width;
     if d > 0 {
-        for _ in 0..d {
+        if d % 2 == 1 {
             i -= 1;
             buf[i] = b'0' + (n % 10) as u8;
             n /= 10;
+        }
+        for _ in 0..d / 2 {
+            i -= 2;
+            buf[i..i + 2].copy_from_slice(pair(n % 100));
+            n /= 100;
         }
         i -= 1;
         buf[i] = b'.';
@@ -289,9 +294,16 @@ impl TrackRecord {
         out.push_str(",\"pos_cov_m2\":[[");
         fixed(out, self.pos_cov_m2[0][0], 2);
         out.push(',');
+        let en_at = out.0.len();
         fixed(out, self.pos_cov_m2[0][1], 2);
+        let en_end = out.0.len();
         out.push_str("],[");
-        fixed(out, self.pos_cov_m2[1][0], 2);
+        if self.pos_cov_m2[1][0].to_bits() == self.pos_cov_m2[0][1].to_bits() {
+            // A symmetric covariance (every engine record): the same text.
+            out.0.extend_from_within(en_at..en_end);
+        } else {
+            fixed(out, self.pos_cov_m2[1][0], 2);
+        }
         out.push(',');
         fixed(out, self.pos_cov_m2[1][1], 2);
         out.push_str("]],\"sensors\":[");
