@@ -465,11 +465,10 @@ fn moment_match(comps: &[Gaussian], w: &[f64]) -> Gaussian {
 /// [`Imm::init`] leaves them.
 fn one_component(s: &ImmState, n: usize) -> bool {
     let (x0, p0) = (s.comps[0].x.as_slice(), s.comps[0].p.as_slice());
-    // Entry by entry without a branch each (nalgebra's `==` is slower).
-    s.comps[1..n].iter().all(|c| {
-        let same = |a: &[f64], b: &[f64]| a.iter().zip(b).fold(true, |ok, (u, v)| ok & (u == v));
-        same(c.x.as_slice(), x0) && same(c.p.as_slice(), p0)
-    })
+    // Entry by entry without a branch each (nalgebra's `==` is slower);
+    // the means first, which differ as soon as a measurement came in.
+    let same = |a: &[f64], b: &[f64]| a.iter().zip(b).fold(true, |ok, (u, v)| ok & (u == v));
+    s.comps[1..n].iter().all(|c| same(c.x.as_slice(), x0)) && s.comps[1..n].iter().all(|c| same(c.p.as_slice(), p0))
 }
 
 /// [`moment_match`] summing the upper triangle only and mirroring it. For

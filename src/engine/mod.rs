@@ -505,16 +505,22 @@ impl Engine {
         p[(3, 3)] = v2;
         p[(4, 4)] = INIT_TURN_SIGMA * INIT_TURN_SIGMA;
         let x = StateVec::new(z.x, z.y, 0.0, 0.0, 0.0);
-        let state = self.imm.init(Gaussian { x, p }, Some(&self.mu0));
-        let est = self.imm.combine_fast(&state);
-        let mut t = Track::new(self.next_number, state, est, time, sensor);
+        let g = Gaussian { x, p };
+        let state = self.imm.init(g, Some(&self.mu0));
+        // Every model starts from `g`, so the combined estimate is `g`
+        // (what `combine_fast` gives for such a state).
+        let idx = self.tracks.len() as u32;
+        let cell = cell_of(z);
+        // Built in place in the table: a track is over a kilobyte.
+        self.tracks.push(Track::new(self.next_number, state, g, time, sensor));
         self.next_number += 1;
         self.stats.tracks_started += 1;
-        t.look(true, &self.rules);
-        t.cell = cell_of(z);
-        let idx = self.tracks.len() as u32;
-        self.grid.entry(t.cell).or_default().push(idx);
-        self.tracks.push(t);
+        let rules = self.rules;
+        if let Some(t) = self.tracks.last_mut() {
+            t.look(true, &rules);
+            t.cell = cell;
+        }
+        self.grid.entry(cell).or_default().push(idx);
         idx
     }
 
