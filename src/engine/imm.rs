@@ -25,6 +25,10 @@ use nalgebra::{Matrix2, Vector2};
 
 pub const MAX_MODELS: usize = 3;
 
+/// A Kalman update with a position measurement ([`super::filter::update`]
+/// or its fast twin).
+type KalmanUpdate = fn(&Gaussian, &Vector2<f64>, &Matrix2<f64>) -> Option<(Gaussian, super::filter::Innovation)>;
+
 /// Allowed error in a row sum of a [`Switching::Fixed`] matrix.
 const ROW_SUM_TOLERANCE: f64 = 1e-9;
 
@@ -407,13 +411,7 @@ impl Imm {
     }
 
     /// [`Imm::update`] with the per-model Kalman update given.
-    fn update_with(
-        &self,
-        pred: &ImmState,
-        z: &Vector2<f64>,
-        r: &Matrix2<f64>,
-        kalman_update: fn(&Gaussian, &Vector2<f64>, &Matrix2<f64>) -> Option<(Gaussian, super::filter::Innovation)>,
-    ) -> Option<(ImmState, f64)> {
+    fn update_with(&self, pred: &ImmState, z: &Vector2<f64>, r: &Matrix2<f64>, kalman_update: KalmanUpdate) -> Option<(ImmState, f64)> {
         let n = self.n;
         let mut out = *pred;
         let mut log_w = [f64::NEG_INFINITY; MAX_MODELS];

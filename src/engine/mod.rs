@@ -251,22 +251,22 @@ fn imm_gate_position(n_models: usize, pred: &imm::PositionPrediction, lead: f64,
     // every gate, and need no logarithms.
     let mut inside = false;
     let mut inns = [None; imm::MAX_MODELS];
-    for j in 0..n_models {
-        if !(pred.mu[j] > 0.0) {
-            continue;
+    for (j, inn) in inns.iter_mut().enumerate().take(n_models) {
+        // A model of probability 0 (or NaN) takes no part.
+        if pred.mu[j] > 0.0 {
+            let (x, p) = (&pred.x[j], &pred.p[j]);
+            let pos = Vector2::new(x[0] + x[2] * lead, x[1] + x[3] * lead);
+            *inn = filter::innovation_of_position(&pos, &Matrix2::new(p[0], p[1], p[1], p[2]), z, r);
+            inside |= inn.is_some_and(|i| i.d2 <= gate_d2);
         }
-        let (x, p) = (&pred.x[j], &pred.p[j]);
-        let pos = Vector2::new(x[0] + x[2] * lead, x[1] + x[3] * lead);
-        inns[j] = filter::innovation_of_position(&pos, &Matrix2::new(p[0], p[1], p[1], p[2]), z, r);
-        inside |= inns[j].is_some_and(|i| i.d2 <= gate_d2);
     }
     if !inside {
         return None;
     }
     let mut terms = [f64::NEG_INFINITY; imm::MAX_MODELS];
-    for j in 0..n_models {
-        if let Some(inn) = &inns[j] {
-            terms[j] = pred.mu[j].ln() + inn.log_likelihood();
+    for ((term, inn), mu) in terms.iter_mut().zip(&inns).zip(&pred.mu).take(n_models) {
+        if let Some(inn) = inn {
+            *term = mu.ln() + inn.log_likelihood();
         }
     }
     let m = terms.iter().copied().fold(f64::NEG_INFINITY, f64::max);
@@ -710,10 +710,10 @@ impl Engine {
                     if t.last_hit(sensor).is_some_and(|h| plot.det.time.secs_since(h) < min_gap) {
                         continue;
                     }
-                    if let Some(ll) = imm_gate_position(self.imm.n_models(), &sc.gate_pred[col], lead, &plot.z, &plot.r, SECOND_CHANCE_SCALE * self.gate_d2) {
-                        if best.is_none_or(|(b, _)| ll > b) {
-                            best = Some((ll, col));
-                        }
+                    if let Some(ll) = imm_gate_position(self.imm.n_models(), &sc.gate_pred[col], lead, &plot.z, &plot.r, SECOND_CHANCE_SCALE * self.gate_d2)
+                        && best.is_none_or(|(b, _)| ll > b)
+                    {
+                        best = Some((ll, col));
                     }
                 }
                 if let Some((_, col)) = best {

@@ -88,7 +88,7 @@ fn fixed(out: &mut Line<'_>, v: f64, d: u32) {
     // Below 9e15 < 2^53 the integer part and the fraction of `a` are
     // exact, so rounding half away from zero is a comparison (and
     // avoids a libm call: `round` has no instruction in baseline x86-64).
-    if !(a < 9.0e15) {
+    if a.is_nan() || a >= 9.0e15 {
         return fixed_slow(out, v, d);
     }
     let mut n = a as u64;
@@ -188,7 +188,7 @@ fn pair(v: u64) -> &'static [u8] {
 /// `f64::round` (half away from zero) without the libm call.
 fn round_half_away(x: f64) -> f64 {
     let a = x.abs();
-    if !(a < 4.0e15) {
+    if a.is_nan() || a >= 4.0e15 {
         return x.round();
     }
     let mut n = a as u64;
