@@ -39,7 +39,7 @@ fn run_engine(cfg: &Config, records: &[Record]) -> usize {
 
 fn engine_throughput<M: Measurement>(c: &mut Criterion<M>, prefix: &str) {
     let (cfg, feed) = scenario();
-    let records = read_feeds(&[feed.clone()], &cfg).expect("feed").records;
+    let records = read_feeds(std::slice::from_ref(&feed), &cfg).expect("feed").records;
     let plots = records.iter().filter(|r| matches!(r, Record::Detection(_))).count() as u64;
     let mut g = c.benchmark_group(format!("{prefix}engine"));
     g.sample_size(10);
@@ -51,10 +51,10 @@ fn engine_throughput<M: Measurement>(c: &mut Criterion<M>, prefix: &str) {
     let mut g = c.benchmark_group(format!("{prefix}offline"));
     g.sample_size(10);
     g.throughput(Throughput::Elements(plots));
-    g.bench_function("check", |b| b.iter(|| black_box(read_feeds(&[feed.clone()], &cfg).expect("feed").records.len())));
+    g.bench_function("check", |b| b.iter(|| black_box(read_feeds(std::slice::from_ref(&feed), &cfg).expect("feed").records.len())));
     g.bench_function("track", |b| {
         b.iter(|| {
-            let f = read_feeds(&[feed.clone()], &cfg).expect("feed");
+            let f = read_feeds(std::slice::from_ref(&feed), &cfg).expect("feed");
             let mut engine = Engine::new(&cfg).expect("engine");
             let mut out = Vec::new();
             // As `skerry track` writes: lines as bytes into one buffer,

@@ -93,33 +93,45 @@ impl Motion {
     /// are read.
     pub fn predict_position(&self, g: &Gaussian, dt: f64) -> ([f64; 4], [f64; 3]) {
         let dt = sanitize_dt(dt);
-        let p = &g.p;
-        match *self {
-            Motion::ConstantVelocity { accel_psd } => {
-                // F x and the position block of F P Fᵀ + Q written out;
-                // the terms left out are products with F's zeros.
-                let x = &g.x;
-                let mean = [x[0] + x[2] * dt, x[1] + x[3] * dt, x[2], x[3]];
-                let m0 = |j: usize| p[(0, j)] + p[(2, j)] * dt;
-                let m1 = |j: usize| p[(1, j)] + p[(3, j)] * dt;
-                // As `cwna_noise` forms it; its east–north entry is 0.
-                let q = accel_psd * dt * dt * dt / 3.0;
-                let en = ((m0(1) + m0(3) * dt + 0.0) + (m1(0) + m1(2) * dt + 0.0)) * 0.5;
-                (mean, [m0(0) + m0(2) * dt + q, en, m1(1) + m1(3) * dt + q])
-            }
-            Motion::CoordinatedTurn { .. } => {
-                let (x, f) = self.transition(&g.x, dt);
-                let q = self.process_noise(dt);
-                let mut m = [[0.0; 5]; 2];
-                for j in 0..5 {
-                    m[0][j] = p[(0, j)] + p[(2, j)] * f[(0, 2)] + p[(3, j)] * f[(0, 3)] + p[(4, j)] * f[(0, 4)];
-                    m[1][j] = p[(1, j)] + p[(2, j)] * f[(1, 2)] + p[(3, j)] * f[(1, 3)] + p[(4, j)] * f[(1, 4)];
-                }
-                let col = |i: usize, k: usize| m[i][k] + m[i][2] * f[(k, 2)] + m[i][3] * f[(k, 3)] + m[i][4] * f[(k, 4)];
-                let en = ((col(0, 1) + q[(0, 1)]) + (col(1, 0) + q[(1, 0)])) * 0.5;
-                ([x[0], x[1], x[2], x[3]], [col(0, 0) + q[(0, 0)], en, col(1, 1) + q[(1, 1)]])
-            }
+        if self.moves_as_cv(&g.x) {
+            let (mean, x) = cv_position_parts(g, dt);
+            let q = self.position_noise(dt);
+            return (mean, [x[0] + q, x[1], x[2] + q]);
         }
+        let p = &g.p;
+        let (x, f) = self.transition(&g.x, dt);
+        let q = self.process_noise(dt);
+        let mut m = [[0.0; 5]; 2];
+        for j in 0..5 {
+            m[0][j] = p[(0, j)] + p[(2, j)] * f[(0, 2)] + p[(3, j)] * f[(0, 3)] + p[(4, j)] * f[(0, 4)];
+            m[1][j] = p[(1, j)] + p[(2, j)] * f[(1, 2)] + p[(3, j)] * f[(1, 3)] + p[(4, j)] * f[(1, 4)];
+        }
+        let col = |i: usize, k: usize| m[i][k] + m[i][2] * f[(k, 2)] + m[i][3] * f[(k, 3)] + m[i][4] * f[(k, 4)];
+        let en = ((col(0, 1) + q[(0, 1)]) + (col(1, 0) + q[(1, 0)])) * 0.5;
+        ([x[0], x[1], x[2], x[3]], [col(0, 0) + q[(0, 0)], en, col(1, 1) + q[(1, 1)]])
+    }
+
+    /// Whether this model predicts the position from state `x` as the CV
+    /// model does: always for CV; for the coordinated turn when the
+    /// velocity and the turn rate are exactly 0 (as in a new track), where
+    /// its Jacobian's position rows are the CV's `[I, dt·I, 0]` exactly
+    /// (s = dt, c = 0 and both ω-derivative terms 0) and its noise has the
+    /// CV's position block.
+    pub fn moves_as_cv(&self, x: &StateVec) -> bool {
+        match self {
+            Motion::ConstantVelocity { .. } => true,
+            Motion::CoordinatedTurn { .. } => x[2] == 0.0 && x[3] == 0.0 && x[4] == 0.0,
+        }
+    }
+
+    /// The position-variance term of the process noise over `dt` (each
+    /// axis; the east–north term is 0): `q dt³/3` as [`cwna_noise`] forms it.
+    pub fn position_noise(&self, dt: f64) -> f64 {
+        let dt = sanitize_dt(dt);
+        let q = match *self {
+            Motion::ConstantVelocity { accel_psd } | Motion::CoordinatedTurn { accel_psd, .. } => accel_psd,
+        };
+        q * dt * dt * dt / 3.0
     }
 
     /// The predicted mean `f(x)` after `dt` seconds and the Jacobian of the
@@ -224,6 +236,19 @@ pub fn predict_linear(g: &Gaussian, f: &StateCov, q: &StateCov) -> Gaussian {
         x: f * g.x,
         p: symmetric(f * g.p * f.transpose() + q),
     }
+}
+
+/// The CV prediction of the position without process noise: the mean
+/// `[e, n, ve, vn]` after `dt` and `[x_ee, x_en, x_nn]` of `F P Fᵀ`, the
+/// east–north term symmetrised as [`Motion::predict`] does (its noise
+/// term there is 0). Summed as [`cv_sandwich`] sums.
+pub fn cv_position_parts(g: &Gaussian, dt: f64) -> ([f64; 4], [f64; 3]) {
+    let (x, p) = (&g.x, &g.p);
+    let mean = [x[0] + x[2] * dt, x[1] + x[3] * dt, x[2], x[3]];
+    let m0 = |j: usize| p[(0, j)] + p[(2, j)] * dt;
+    let m1 = |j: usize| p[(1, j)] + p[(3, j)] * dt;
+    let en = ((m0(1) + m0(3) * dt + 0.0) + (m1(0) + m1(2) * dt + 0.0)) * 0.5;
+    (mean, [m0(0) + m0(2) * dt, en, m1(1) + m1(3) * dt])
 }
 
 /// `F P Fᵀ` for the CV transition over `dt`, term by term in the order

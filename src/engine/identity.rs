@@ -38,7 +38,11 @@ impl Engine {
             .site
             .geodetic_to_plane(Geodetic::new(r.lat_deg, r.lon_deg, 0.0));
         let rcov = Matrix2::new(sigma * sigma, 0.0, 0.0, sigma * sigma);
-        if let Some(&idx) = self.identities.get(&r.id) {
+        // An entry for a track that has ended (and is not compacted away
+        // yet) is no longer an identity held.
+        if let Some(&idx) = self.identities.get(&r.id)
+            && self.tracks[idx as usize].status != TrackStatus::Ended
+        {
             let t = &self.tracks[idx as usize];
             let dt = r.time.secs_since(t.time).max(0.0);
             let g = t.est;

@@ -25,6 +25,10 @@ use nalgebra::{Matrix2, Vector2};
 
 pub const MAX_MODELS: usize = 3;
 
+/// A Kalman update with a position measurement ([`super::filter::update`]
+/// or its fast twin).
+type KalmanUpdate = fn(&Gaussian, &Vector2<f64>, &Matrix2<f64>) -> Option<(Gaussian, super::filter::Innovation)>;
+
 /// Allowed error in a row sum of a [`Switching::Fixed`] matrix.
 const ROW_SUM_TOLERANCE: f64 = 1e-9;
 
@@ -349,6 +353,20 @@ impl Imm {
         for j in 0..n {
             cbar[j] = (0..n).map(|i| pi[i][j] * s.mu[i]).sum();
         }
+        out.mu = normalized(cbar, n);
+        let g0 = &s.comps[0];
+        if same && self.models[..n].iter().all(|m| m.moves_as_cv(&g0.x)) {
+            // One Gaussian that every model moves as CV does (a new
+            // track): the models differ only in their noise term.
+            let dt = if dt.is_finite() && dt > 0.0 { dt } else { 0.0 };
+            let (mean, x) = super::filter::cv_position_parts(g0, dt);
+            for j in 0..n {
+                let q = self.models[j].position_noise(dt);
+                out.x[j] = mean;
+                out.p[j] = [x[0] + q, x[1], x[2] + q];
+            }
+            return out;
+        }
         for j in 0..n {
             let mut w = [0.0; MAX_MODELS];
             for i in 0..n {
@@ -365,7 +383,6 @@ impl Imm {
             };
             (out.x[j], out.p[j]) = self.models[j].predict_position(&mixed, dt);
         }
-        out.mu = normalized(cbar, n);
         out
     }
 
@@ -394,13 +411,7 @@ impl Imm {
     }
 
     /// [`Imm::update`] with the per-model Kalman update given.
-    fn update_with(
-        &self,
-        pred: &ImmState,
-        z: &Vector2<f64>,
-        r: &Matrix2<f64>,
-        kalman_update: fn(&Gaussian, &Vector2<f64>, &Matrix2<f64>) -> Option<(Gaussian, super::filter::Innovation)>,
-    ) -> Option<(ImmState, f64)> {
+    fn update_with(&self, pred: &ImmState, z: &Vector2<f64>, r: &Matrix2<f64>, kalman_update: KalmanUpdate) -> Option<(ImmState, f64)> {
         let n = self.n;
         let mut out = *pred;
         let mut log_w = [f64::NEG_INFINITY; MAX_MODELS];
@@ -452,11 +463,10 @@ fn moment_match(comps: &[Gaussian], w: &[f64]) -> Gaussian {
 /// [`Imm::init`] leaves them.
 fn one_component(s: &ImmState, n: usize) -> bool {
     let (x0, p0) = (s.comps[0].x.as_slice(), s.comps[0].p.as_slice());
-    // Entry by entry without a branch each (nalgebra's `==` is slower).
-    s.comps[1..n].iter().all(|c| {
-        let same = |a: &[f64], b: &[f64]| a.iter().zip(b).fold(true, |ok, (u, v)| ok & (u == v));
-        same(c.x.as_slice(), x0) && same(c.p.as_slice(), p0)
-    })
+    // Entry by entry without a branch each (nalgebra's `==` is slower);
+    // the means first, which differ as soon as a measurement came in.
+    let same = |a: &[f64], b: &[f64]| a.iter().zip(b).fold(true, |ok, (u, v)| ok & (u == v));
+    s.comps[1..n].iter().all(|c| same(c.x.as_slice(), x0)) && s.comps[1..n].iter().all(|c| same(c.p.as_slice(), p0))
 }
 
 /// [`moment_match`] summing the upper triangle only and mirroring it. For
@@ -574,7 +584,14 @@ mod fast_path_tests {
         let imm = Imm::vessel_default();
         let n = imm.n_models();
         for trial in 0..5_000 {
-            let g = random_gaussian(&mut rng);
+            let mut g = random_gaussian(&mut rng);
+            if trial % 2 == 0 {
+                // As a new track starts: at rest, not turning (the turn
+                // model then moves as CV does).
+                g.x[2] = 0.0;
+                g.x[3] = 0.0;
+                g.x[4] = 0.0;
+            }
             let s = imm.init(g, Some(&VESSEL_MU0));
             let dt = rng.random_range(0.0..30.0);
             let (want, got) = (imm.predict(&s, dt), imm.predict_fast(&s, dt));

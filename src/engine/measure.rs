@@ -47,11 +47,35 @@ use nalgebra::{Matrix2, Vector2};
 /// plots at the boundary). The covariance is positive semi-definite by
 /// construction (a conditional second moment).
 pub fn polar_to_cartesian(range_m: f64, bearing_rad: f64, sigma_r_m: f64, sigma_b_rad: f64) -> (Vector2<f64>, Matrix2<f64>) {
-    let var_b = sigma_b_rad * sigma_b_rad;
+    polar_to_cartesian_with(range_m, bearing_rad.sin_cos(), sigma_r_m, &BearingNoise::new(sigma_b_rad))
+}
+
+/// The factors of [`polar_to_cartesian`] that depend on the bearing error
+/// alone, worked out once per sensor rather than per plot (three
+/// exponentials).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct BearingNoise {
+    /// λ⁻¹ = exp(σ_b²/2).
+    inv_lambda: f64,
+    /// g = λ⁻² − 1.
+    g: f64,
+    /// h = 1 − λ', λ' = exp(−2σ_b²).
+    h: f64,
+}
+
+impl BearingNoise {
+    pub fn new(sigma_b_rad: f64) -> BearingNoise {
+        let var_b = sigma_b_rad * sigma_b_rad;
+        // λ = E[cos w] = exp(−σ_b²/2) for Gaussian w.
+        BearingNoise { inv_lambda: (0.5 * var_b).exp(), g: var_b.exp_m1(), h: -(-2.0 * var_b).exp_m1() }
+    }
+}
+
+/// [`polar_to_cartesian`] with the bearing's sine and cosine and the
+/// bearing factors given: the same numbers.
+pub fn polar_to_cartesian_with(range_m: f64, (s, c): (f64, f64), sigma_r_m: f64, noise: &BearingNoise) -> (Vector2<f64>, Matrix2<f64>) {
     let var_r = sigma_r_m * sigma_r_m;
-    let (s, c) = bearing_rad.sin_cos();
-    // λ = E[cos w] = exp(−σ_b²/2) for Gaussian w.
-    let inv_lambda = (0.5 * var_b).exp();
+    let inv_lambda = noise.inv_lambda;
     let mean = Vector2::new(range_m * s * inv_lambda, range_m * c * inv_lambda);
 
     // Mo et al.'s covariance, north component for example,
@@ -61,8 +85,7 @@ pub fn polar_to_cartesian(range_m: f64, bearing_rad: f64, sigma_r_m: f64, sigma_
     //   R = (g·r² + σ_r²)·u uᵀ + ½(r² + σ_r²)·h·[[cos 2b, −sin 2b], [−sin 2b, −cos 2b]]
     // in (east, north), with u = (sin b, cos b) the range direction.
     let r2 = range_m * range_m;
-    let g = var_b.exp_m1();
-    let h = -(-2.0 * var_b).exp_m1();
+    let (g, h) = (noise.g, noise.h);
     let radial = g * r2 + var_r;
     let spread = 0.5 * (r2 + var_r) * h;
     let cos2 = c * c - s * s;

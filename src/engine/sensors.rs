@@ -10,10 +10,10 @@
 //! this against the iterative placement on the ellipsoid in
 //! [`crate::geo::Antenna::plot_to_site`].
 
-use super::measure::polar_to_cartesian;
+use super::measure::{BearingNoise, polar_to_cartesian_with};
 use crate::config::{Config, SensorConfig};
 use crate::feed::SensorKind;
-use crate::geo::{Antenna, Geodetic, LocalFrame, euler_radius, radii_of_curvature};
+use crate::geo::{Antenna, Geodetic, LocalFrame, radii_of_curvature};
 use nalgebra::{Matrix2, Matrix3, Vector2, Vector3};
 
 /// Geometry of one radar.
@@ -41,7 +41,10 @@ impl RadarGeometry {
     /// surface point at slant range `range_m` and bearing with sine and
     /// cosine `sb`, `cb`.
     fn horizontal(&self, range_m: f64, sb: f64, cb: f64) -> (f64, f64) {
-        let r_earth = euler_radius(self.radii.0, self.radii.1, sb.atan2(cb));
+        // Euler's radius M N / (N cos² + M sin²) straight from the
+        // bearing's sine and cosine (no round trip through atan2).
+        let (m, n) = self.radii;
+        let r_earth = m * n / (n * cb * cb + m * sb * sb);
         let ra = r_earth + self.height_m;
         let rt = r_earth;
         let cos_g = ((ra * ra + rt * rt - range_m * range_m) / (2.0 * ra * rt)).clamp(-1.0, 1.0);
@@ -67,11 +70,17 @@ impl RadarGeometry {
     /// plot, by the unbiased polar conversion in the antenna's horizontal
     /// plane, turned into the site plane.
     pub fn convert(&self, range_m: f64, bearing_rad: f64, sigma_r_m: f64, sigma_b_rad: f64) -> (Vector2<f64>, Matrix2<f64>) {
+        self.convert_with(range_m, bearing_rad, sigma_r_m, &BearingNoise::new(sigma_b_rad))
+    }
+
+    /// [`RadarGeometry::convert`] with the sensor's bearing factors worked
+    /// out beforehand: the same numbers.
+    pub fn convert_with(&self, range_m: f64, bearing_rad: f64, sigma_r_m: f64, noise: &BearingNoise) -> (Vector2<f64>, Matrix2<f64>) {
         let (sb, cb) = bearing_rad.sin_cos();
         let (d, u) = self.horizontal(range_m, sb, cb);
         // Horizontal range error: dd/dr = r / d for the slant geometry.
         let sigma_d = sigma_r_m * if d > 1.0 { range_m / d } else { 1.0 };
-        let (mean_h, cov_h) = polar_to_cartesian(d, bearing_rad, sigma_d, sigma_b_rad);
+        let (mean_h, cov_h) = polar_to_cartesian_with(d, (sb, cb), sigma_d, noise);
         let p = self.rot * Vector3::new(mean_h.x, mean_h.y, u) + self.offset;
         let j = self.rot.fixed_view::<2, 2>(0, 0).into_owned();
         (Vector2::new(p.x, p.y), j * cov_h * j.transpose())
@@ -105,6 +114,8 @@ pub struct SensorModel {
     pub radar: Option<RadarGeometry>,
     pub sigma_r_m: f64,
     pub sigma_b_rad: f64,
+    /// The conversion's factors of `sigma_b_rad`, worked out once.
+    pub bearing_noise: BearingNoise,
     pub pd: f64,
     /// Clutter plots per m² per scan: clutter_per_scan over the coverage
     /// disc.
@@ -127,6 +138,7 @@ impl SensorModel {
             radar,
             sigma_r_m: s.range_sigma_m.unwrap_or(0.0),
             sigma_b_rad: s.bearing_sigma_deg.unwrap_or(0.0).to_radians(),
+            bearing_noise: BearingNoise::new(s.bearing_sigma_deg.unwrap_or(0.0).to_radians()),
             pd: s.detection_probability,
             clutter_density: if area > 0.0 { s.clutter_per_scan / area } else { 0.0 },
             max_range_m,

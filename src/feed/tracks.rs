@@ -87,69 +87,64 @@ pub fn speed_course(vel_east: f64, vel_north: f64) -> (f64, f64) {
     (speed, course)
 }
 
-/// Powers of ten up to 10⁹, for [`fixed`].
-const POW10: [u64; 10] = [1, 10, 100, 1_000, 10_000, 100_000, 1_000_000, 10_000_000, 100_000_000, 1_000_000_000];
-
 /// Writes `v` with `d` decimals (d ≤ 9), never as `-0.00`: the value is
 /// rounded to the nearest multiple of 10⁻ᵈ (ties away from zero, as
 /// `f64::round`) and written as integers, which is several times faster
 /// than float formatting on the output path.
+#[inline]
 fn fixed(out: &mut Line<'_>, v: f64, d: u32) {
-    let d = d.min(9);
-    let scale = POW10[d as usize];
-    let x = v * scale as f64;
+    let d = d.min(9) as usize;
+    let x = v * POW10_U64[d] as f64;
     let a = x.abs();
     // Below 9e15 < 2^53 the integer part and the fraction of `a` are
     // exact, so rounding half away from zero is a comparison (and
     // avoids a libm call: `round` has no instruction in baseline x86-64).
-    let mut n = if a < 9.0e15 { a as u64 } else { u64::MAX };
-    if n != u64::MAX && a - n as f64 >= 0.5 {
+    if a.is_nan() || a >= 9.0e15 {
+        return fixed_slow(out, v, d);
+    }
+    let mut n = a as u64;
+    if a - n as f64 >= 0.5 {
         n += 1;
     }
     if n >= 9_000_000_000_000_000 {
-        // Huge or not finite.
-        out.push_str(&format!("{:.*}", d as usize, v));
-        return;
+        return fixed_slow(out, v, d);
     }
-    let (mut int, mut frac) = (n / scale, n % scale);
     let neg = x < 0.0 && n != 0;
-    let mut int_digits = 1;
-    while int_digits < 20 && int >= POW10_U64[int_digits] {
-        int_digits += 1;
-    }
-    let width = neg as usize + int_digits + if d > 0 { 1 + d as usize } else { 0 };
+    // At least one digit before the point.
+    let digits = count_digits(n).max(d + 1);
+    let width = neg as usize + digits + (d > 0) as usize;
     // Right to left into a fixed buffer, the number left-aligned: the
-    // fraction, the point, the integer part, the sign. The whole buffer
-    // is appended and the tail cut off: a copy of constant size is a few
-    // vector moves, where a copy of the exact size is a `memcpy` call.
+    // fraction, the point, the integer part, the sign. Every division is
+    // by a constant (a multiplication). The whole buffer is appended and
+    // the tail cut off: a copy of constant size is a few vector moves,
+    // where a copy of the exact size is a `memcpy` call.
     let mut buf = [b'0'; 32];
     let mut i = width;
     if d > 0 {
-        let mut k = d;
-        while k >= 2 {
-            i -= 2;
-            buf[i..i + 2].copy_from_slice(pair(frac % 100));
-            frac /= 100;
-            k -= 2;
-        }
-        if k == 1 {
+        if d % 2 == 1 {
             i -= 1;
-            buf[i] = b'0' + (frac % 10) as u8;
+            buf[i] = b'0' + (n % 10) as u8;
+            n /= 10;
+        }
+        for _ in 0..d / 2 {
+            i -= 2;
+            buf[i..i + 2].copy_from_slice(pair(n % 100));
+            n /= 100;
         }
         i -= 1;
         buf[i] = b'.';
     }
-    while int >= 100 {
+    while n >= 100 {
         i -= 2;
-        buf[i..i + 2].copy_from_slice(pair(int % 100));
-        int /= 100;
+        buf[i..i + 2].copy_from_slice(pair(n % 100));
+        n /= 100;
     }
-    if int >= 10 {
+    if n >= 10 {
         i -= 2;
-        buf[i..i + 2].copy_from_slice(pair(int));
+        buf[i..i + 2].copy_from_slice(pair(n));
     } else {
         i -= 1;
-        buf[i] = b'0' + int as u8;
+        buf[i] = b'0' + n as u8;
     }
     if neg {
         buf[0] = b'-';
@@ -159,7 +154,22 @@ fn fixed(out: &mut Line<'_>, v: f64, d: u32) {
     out.0.truncate(end);
 }
 
-/// Powers of ten that fit a u64, for counting digits.
+/// [`fixed`] for values too large for its integer path, or not finite.
+#[cold]
+fn fixed_slow(out: &mut Line<'_>, v: f64, d: usize) {
+    out.push_str(&format!("{v:.d$}"));
+}
+
+/// Decimal digits of `n` (0 for 0): the bit length times log₁₀ 2 gives
+/// the count or one less, and one comparison settles it (the usual
+/// bit-twiddling count).
+fn count_digits(n: u64) -> usize {
+    let bits = 64 - (n | 1).leading_zeros() as usize;
+    let t = (bits * 1233) >> 12;
+    t + (n >= POW10_U64[t]) as usize
+}
+
+/// Powers of ten that fit a u64.
 const POW10_U64: [u64; 20] = {
     let mut t = [1u64; 20];
     let mut k = 1;
@@ -189,7 +199,7 @@ fn pair(v: u64) -> &'static [u8] {
 /// `f64::round` (half away from zero) without the libm call.
 fn round_half_away(x: f64) -> f64 {
     let a = x.abs();
-    if !(a < 4.0e15) {
+    if a.is_nan() || a >= 4.0e15 {
         return x.round();
     }
     let mut n = a as u64;
@@ -295,9 +305,16 @@ impl TrackRecord {
         out.push_str(",\"pos_cov_m2\":[[");
         fixed(out, self.pos_cov_m2[0][0], 2);
         out.push(',');
+        let en_at = out.0.len();
         fixed(out, self.pos_cov_m2[0][1], 2);
+        let en_end = out.0.len();
         out.push_str("],[");
-        fixed(out, self.pos_cov_m2[1][0], 2);
+        if self.pos_cov_m2[1][0].to_bits() == self.pos_cov_m2[0][1].to_bits() {
+            // A symmetric covariance (every engine record): the same text.
+            out.0.extend_from_within(en_at..en_end);
+        } else {
+            fixed(out, self.pos_cov_m2[1][0], 2);
+        }
         out.push(',');
         fixed(out, self.pos_cov_m2[1][1], 2);
         out.push_str("]],\"sensors\":[");
@@ -525,6 +542,21 @@ mod tests {
                 assert_eq!(a, b, "case {k}: {v:e} with {d} decimals");
             }
             assert_eq!(round_half_away(v * 100.0).to_bits(), (v * 100.0).round().to_bits(), "{v:e}");
+        }
+    }
+
+    #[test]
+    fn digit_count_by_brute_force() {
+        // Against the length of the standard formatter's decimal text.
+        let mut cases: Vec<u64> = (0..2000).collect();
+        for k in 1..20 {
+            let p = 10u64.pow(k);
+            cases.extend([p - 1, p, p + 1]);
+        }
+        cases.push(u64::MAX);
+        for n in cases {
+            let want = if n == 0 { 0 } else { n.to_string().len() };
+            assert_eq!(count_digits(n), want, "{n}");
         }
     }
 
