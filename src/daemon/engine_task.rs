@@ -98,21 +98,10 @@ pub struct EngineTask<T: Tracker> {
     pub live_at: Option<Instant>,
 }
 
-/// Track records a batch publishes at a time.
-const PUBLISH_EVERY: usize = 64;
-
 /// Period of the live-track gauges.
 const LIVE_GAUGE_PERIOD: std::time::Duration = std::time::Duration::from_millis(100);
 
 impl<T: Tracker> EngineTask<T> {
-    /// Hands the records made so far to the publisher.
-    fn publish(&mut self, out: &mut Vec<TrackRecord>, sum: &mut EngineSummary) {
-        sum.track_records += out.len() as u64;
-        self.metrics.track_records.fetch_add(out.len() as u64, Relaxed);
-        self.publisher.publish(out);
-        out.clear();
-    }
-
     fn batch(&mut self, b: &Batch, out: &mut Vec<TrackRecord>, sum: &mut EngineSummary) {
         let start = Instant::now();
         for rec in &b.records {
@@ -121,11 +110,6 @@ impl<T: Tracker> EngineTask<T> {
                     self.tracker.handle(rec, out);
                     self.metrics.sensor(Some(rec.sensor())).processed.fetch_add(1, Relaxed);
                     sum.processed += 1;
-                    // A long batch publishes as it goes, so the records
-                    // made early in it do not wait for the rest.
-                    if out.len() >= PUBLISH_EVERY {
-                        self.publish(out, sum);
-                    }
                 }
                 Err(e) => {
                     self.metrics.reject(e.sensor, super::metrics::reason_of(&e.reason));
@@ -141,7 +125,10 @@ impl<T: Tracker> EngineTask<T> {
         }
         self.metrics.observe_batch(start.elapsed().as_secs_f64());
         sum.batches += 1;
-        self.publish(out, sum);
+        sum.track_records += out.len() as u64;
+        self.metrics.track_records.fetch_add(out.len() as u64, Relaxed);
+        self.publisher.publish(out);
+        out.clear();
         let due = self.tracker.next_due();
         self.due.send_if_modified(|d| std::mem::replace(d, due) != due);
         // Counting live tracks visits every track: at most every
