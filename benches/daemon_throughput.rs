@@ -310,7 +310,11 @@ async fn latency<T: Tracker>(label: &str, cfg: Config, tracker: T, load: &Load, 
         // Plot time (s from the first) and its age at the engine task, for a look.
         let t0 = s.plot_times.first().copied().unwrap_or(0);
         let text: String = s.plot_times.iter().zip(&s.at_engine).map(|(t, a)| format!("{:.6} {:.6}\n", (t - t0) as f64 * 1e-9, a - window)).collect();
-        std::fs::write(format!("{path}-{}.txt", label.chars().map(|c| if c.is_ascii_alphanumeric() { c } else { '_' }).collect::<String>()), text).unwrap();
+        let name = label.chars().map(|c| if c.is_ascii_alphanumeric() { c } else { '_' }).collect::<String>();
+        std::fs::write(format!("{path}-{name}.txt"), text).unwrap();
+        // And each track record's age when the tracker emitted it.
+        let text: String = s.emitted.iter().map(|(&(_, t), &w)| format!("{:.6} {:.6}\n", (t - t0) as f64 * 1e-9, (w - t) as f64 * 1e-9 - window)).collect();
+        std::fs::write(format!("{path}-{name}-emitted.txt"), text).unwrap();
     }
     let mut at_engine: Vec<f64> = s.at_engine.iter().map(|a| a - window).collect();
     let mut beyond: Vec<f64> = age.iter().map(|a| a - window).collect();
