@@ -6,10 +6,21 @@
 //! 1. UDP ingest throughput: plots offered at a fixed rate over loopback
 //!    to a bare receive loop (the ceiling) and to the daemon; how many
 //!    arrive and at what rate the daemon takes them.
-//! 2. Latency from send to a subscriber's track record at 20 000 plots/s
-//!    (feed times = the sending clock, as from a live radar), with the
-//!    default 1 s reorder window and with a 50 ms one.
+//! 2. Latency from send to a subscriber's track record, stage by stage
+//!    (datagram → engine task → tracker output → subscriber; see
+//!    BENCHMARKS-latency.md), with the default 1 s reorder window and a
+//!    50 ms one: the transport alone (the Echo stand-in tracker) at
+//!    20 000 plots/s, and the real engine on live radar scenes (800
+//!    plots/s from one radar; 20 000 plots/s from eight), for values of
+//!    `tracking.batch_scan_fraction`. Feed times are the sending clock, as
+//!    from a live radar.
 //! 3. Resident memory sampled over a long replay.
+//!
+//! Arguments choose the parts (`throughput`, `latency`, `memory`;
+//! default all); the environment chooses latency cases
+//! (`LATENCY_CASES=echo,engine,wide,offline`, `LATENCY_WINDOWS`,
+//! `LATENCY_FRACTIONS`, `LATENCY_VESSELS`, `LATENCY_WIDE=radars,vessels,scan_s`)
+//! and `LATENCY_DUMP=PREFIX` writes each record's ages to files.
 
 #[path = "../tests/daemon_support/mod.rs"]
 mod daemon_support;
@@ -310,7 +321,11 @@ async fn latency<T: Tracker>(label: &str, cfg: Config, tracker: T, load: &Load, 
         // Plot time (s from the first) and its age at the engine task, for a look.
         let t0 = s.plot_times.first().copied().unwrap_or(0);
         let text: String = s.plot_times.iter().zip(&s.at_engine).map(|(t, a)| format!("{:.6} {:.6}\n", (t - t0) as f64 * 1e-9, a - window)).collect();
-        std::fs::write(format!("{path}-{}.txt", label.chars().map(|c| if c.is_ascii_alphanumeric() { c } else { '_' }).collect::<String>()), text).unwrap();
+        let name = label.chars().map(|c| if c.is_ascii_alphanumeric() { c } else { '_' }).collect::<String>();
+        std::fs::write(format!("{path}-{name}.txt"), text).unwrap();
+        // And each track record's age when the tracker emitted it.
+        let text: String = s.emitted.iter().map(|(&(_, t), &w)| format!("{:.6} {:.6}\n", (t - t0) as f64 * 1e-9, (w - t) as f64 * 1e-9 - window)).collect();
+        std::fs::write(format!("{path}-{name}-emitted.txt"), text).unwrap();
     }
     let mut at_engine: Vec<f64> = s.at_engine.iter().map(|a| a - window).collect();
     let mut beyond: Vec<f64> = age.iter().map(|a| a - window).collect();
@@ -380,7 +395,8 @@ async fn latency_all(quick: bool) {
     let cases = std::env::var("LATENCY_CASES").unwrap_or_else(|_| "echo,engine,wide".into());
     let secs = if quick { 1.0 } else { 5.0 };
     let stamped = Load::Stamped { rate: 20_000.0 };
-    let windows: Vec<String> = std::env::var("LATENCY_WINDOWS").unwrap_or_else(|_| "1.0,0.05".into()).split(',').map(str::to_string).collect();
+    // The smoke run (`cargo test --benches`) takes one case of each.
+    let windows: Vec<String> = std::env::var("LATENCY_WINDOWS").unwrap_or_else(|_| if quick { "1.0".into() } else { "1.0,0.05".into() }).split(',').map(str::to_string).collect();
     let windows: Vec<&str> = windows.iter().map(String::as_str).collect();
     for &window in windows.iter().filter(|_| cases.contains("echo")) {
         latency(&format!("Echo tracker, 20000 plots/s, reorder window {window} s"), config(&[("SKERRY__SERVE__REORDER_WINDOW_S", window)]), Echo::default(), &stamped, secs).await;
@@ -388,11 +404,11 @@ async fn latency_all(quick: bool) {
     // A live radar: `n` vessels seen every 2.5 s scan, each plot sent at
     // its beam time, each scan closed by a scan_end.
     let n: usize = std::env::var("LATENCY_VESSELS").ok().and_then(|v| v.parse().ok()).unwrap_or(if quick { 200 } else { 2000 });
-    let scene_secs: f64 = if quick { 6.0 } else { 30.0 };
+    let scene_secs: f64 = if quick { 3.0 } else { 30.0 };
     let cfg = config(&[]);
     let scans = (scene_secs / 2.5).ceil() as u64 + 1;
     let scene = Load::Scene { records: feed(&cfg, n, scans), table: cfg.sensor_table() };
-    let fractions: Vec<String> = std::env::var("LATENCY_FRACTIONS").unwrap_or_else(|_| "0.0625,0".into()).split(',').map(str::to_string).collect();
+    let fractions: Vec<String> = std::env::var("LATENCY_FRACTIONS").unwrap_or_else(|_| if quick { "0".into() } else { "0.0625,0".into() }).split(',').map(str::to_string).collect();
     for &window in windows.iter().filter(|_| cases.contains("engine")) {
         for fraction in &fractions {
             let ov = [("SKERRY__SERVE__REORDER_WINDOW_S", window), ("SKERRY__TRACKING__BATCH_SCAN_FRACTION", fraction.as_str())];
@@ -406,7 +422,7 @@ async fn latency_all(quick: bool) {
     // LATENCY_WIDE = radars,vessels per radar,scan period (s).
     let wide: Vec<f64> = std::env::var("LATENCY_WIDE").unwrap_or_else(|_| if quick { "2,200,1.0".into() } else { "8,2500,1.0".into() }).split(',').filter_map(|v| v.parse().ok()).collect();
     let (radars, per, period) = (wide[0] as usize, wide[1] as usize, wide[2]);
-    let wide_secs: f64 = if quick { 6.0 } else { 20.0 };
+    let wide_secs: f64 = if quick { 3.0 } else { 20.0 };
     let (wcfg, wrecs) = wide_scene(radars, per, period, (wide_secs / period).ceil() as u64 + 1);
     if cases.contains("offline") {
         // The engine alone over the same records, for scale.

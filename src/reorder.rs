@@ -14,6 +14,9 @@
 //!   released after it: it is what the engine's `advance` needs. Records
 //!   of equal time leave in the order they arrived.
 //! - [`Reorder::drain`] releases everything (shutdown, end of a feed).
+//! - [`Reorder::due_at`] says when, with no more arrivals, `pop_due` would
+//!   move the release time to a given feed time, so that a driver can
+//!   sleep until then instead of polling the clock.
 //!
 //! # How the release time is chosen
 //!

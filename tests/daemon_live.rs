@@ -231,8 +231,8 @@ async fn live_replay_gives_the_offline_tracks() {
         let mut screen = Screen::new(None, 1e9);
         decoded.retain(|r| screen.admit(r).is_ok());
         let want = json(&offline(&c, &decoded));
-        // 150 s of feed at 25x: about 6 s, the releases following the clock.
-        let got = json(&live(c, &lines, 25.0).await);
+        // 150 s of feed at 40x: under 4 s, the releases following the clock.
+        let got = json(&live(c, &lines, 40.0).await);
         assert_eq!(got.len(), want.len(), "batch_scan_fraction {fraction}");
         assert_eq!(got, want, "batch_scan_fraction {fraction}");
     }

@@ -52,15 +52,13 @@ pub(super) fn prune_pairs(pairs: &mut Vec<(u32, u32, f64)>, n_cols: usize, s: &m
     }
     s.limit.clear();
     s.limit.resize(n_cols, f64::INFINITY);
-    for c in 0..n_cols {
-        let n = s.per_col[c];
+    for ((&n, &end), limit) in s.per_col.iter().zip(&fill).zip(s.limit.iter_mut()) {
         if n <= t {
             continue;
         }
-        let end = fill[c] as usize;
-        let col = &mut s.costs[end - n as usize..end];
+        let col = &mut s.costs[(end - n) as usize..end as usize];
         let (_, nth, _) = col.select_nth_unstable_by((t - 1) as usize, f64::total_cmp);
-        s.limit[c] = *nth;
+        *limit = *nth;
     }
     s.start = fill;
     let limit = &s.limit;

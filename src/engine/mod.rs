@@ -9,6 +9,8 @@
 //! - [`Engine::handle`] for each record, in non-decreasing time order;
 //! - [`Engine::advance`] when the feed is quiet: feed time has reached
 //!   `now` and no record earlier than `now` will follow;
+//! - [`Engine::next_due`]: the feed time at which `advance` next has work
+//!   (the open batch's end, the next timeout check), for a live driver;
 //! - [`Engine::finish`] at the end of a feed, to process what is held back;
 //! - [`Engine::picture`]: the latest record of every live track.
 //!
@@ -32,8 +34,15 @@
 //! JPDA* marginals, IMM-PDA updates); transponder reports are handled the
 //! same way in both modes (identity.rs).
 //!
-//! Track timeouts are checked on a one-second grid of feed time, so the
-//! result does not depend on when the daemon's clock ticks.
+//! Track timeouts are checked at every whole second of feed time, so the
+//! result does not depend on when the daemon's clock ticks or calls
+//! `advance`.
+//!
+//! Two overload limits bound a batch's work however heavy the clutter,
+//! each drop counted ([`Engine::dropped`]): `tracking.max_plots_per_batch`
+//! (later plots of a full batch are dropped) and
+//! `tracking.max_new_tracks_per_batch` (tentative-track starts). GNN's
+//! assignment problem is pruned exactly (bound.rs).
 
 pub mod assign;
 mod bound;
