@@ -233,3 +233,95 @@ fn a_write_cut_short_counts_the_lines_that_reached_the_file() {
         assert!(m.contains("skerry_record_failing 0\n"), "{m}");
     }
 }
+
+/// A disk whose writes wait at a gate until the test opens it.
+struct Gated {
+    inner: FsDisk,
+    gate: Arc<(std::sync::Mutex<bool>, std::sync::Condvar)>,
+    entered: Arc<AtomicUsize>,
+}
+
+impl Disk for Gated {
+    fn list(&mut self) -> std::io::Result<Vec<(String, u64)>> {
+        self.inner.list()
+    }
+    fn open(&mut self, name: &str) -> std::io::Result<Opened> {
+        self.inner.open(name)
+    }
+    fn ends_with_newline(&mut self) -> std::io::Result<bool> {
+        self.inner.ends_with_newline()
+    }
+    fn write(&mut self, buf: &[u8]) -> Result<(), WriteFault> {
+        self.entered.fetch_add(1, Relaxed);
+        let (open, cv) = &*self.gate;
+        let mut g = open.lock().unwrap();
+        while !*g {
+            g = cv.wait(g).unwrap();
+        }
+        self.inner.write(buf)
+    }
+    fn sync(&mut self) -> std::io::Result<()> {
+        self.inner.sync()
+    }
+    fn close(&mut self) -> std::io::Result<()> {
+        self.inner.close()
+    }
+    fn remove(&mut self, name: &str) -> std::io::Result<()> {
+        self.inner.remove(name)
+    }
+}
+
+/// Snapshots wait on `Recorder::wait_settled` (src/daemon/engine_task.rs):
+/// it must not report a record settled while its write is still under
+/// way, must count a record refused by a full queue as settled at once
+/// (it will never be written), and must report all settled once the
+/// writes are done. Definition: settled = written to the file or counted
+/// as not recorded.
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn settled_marks_follow_the_writes_and_the_refusals() {
+    let tmp = tempfile::tempdir().unwrap();
+    let dir = tmp.path();
+    let cfg = config(&[("SKERRY__RECORD__DIR", dir.to_str().unwrap()), ("SKERRY__RECORD__QUEUE", "4")]);
+    let metrics = Arc::new(Metrics::new(&cfg, ts("2026-05-14T06:00:00Z")));
+    let gate = Arc::new((std::sync::Mutex::new(false), std::sync::Condvar::new()));
+    let entered = Arc::new(AtomicUsize::new(0));
+    let disk = Gated { inner: FsDisk::new(dir), gate: gate.clone(), entered: entered.clone() };
+    let r = cfg.record.as_ref().unwrap();
+    assert_eq!(r.queue, 4);
+    let clock = skerry::daemon::clock::DaemonClock::start();
+    let (rec, handle) = skerry::daemon::record::start(r, Box::new(disk), cfg.sensor_table(), metrics.clone(), clock, 10.0).unwrap();
+    let t = ts("2026-05-14T06:00:01Z");
+    assert_eq!(rec.mark(), 0);
+    assert!(rec.wait_settled(0, std::time::Duration::ZERO), "nothing offered: nothing to wait for");
+
+    // One record; the writer takes it and is held at the gate.
+    rec.offer(plot(&cfg, t, 1000.0), clock.now());
+    let started = std::time::Instant::now();
+    while entered.load(Relaxed) == 0 {
+        assert!(started.elapsed() < std::time::Duration::from_secs(10), "the writer never started a write");
+        std::thread::sleep(std::time::Duration::from_millis(5));
+    }
+    assert_eq!(rec.mark(), 1);
+    assert!(!rec.wait_settled(1, std::time::Duration::from_millis(150)), "a record still being written is not settled");
+
+    // Five more while the writer is held: four fill the queue, the fifth
+    // is refused and so settled at once.
+    for i in 0..5 {
+        rec.offer(plot(&cfg, t, 1100.0 + f64::from(i)), clock.now());
+    }
+    assert_eq!(rec.mark(), 6);
+    assert_eq!(metrics.record.queue_full.load(Relaxed), 1);
+    assert!(!rec.wait_settled(6, std::time::Duration::from_millis(150)), "five are not settled yet");
+
+    // Open the gate: everything settles, and five records reach the file.
+    {
+        let (open, cv) = &*gate;
+        *open.lock().unwrap() = true;
+        cv.notify_all();
+    }
+    assert!(rec.wait_settled(6, std::time::Duration::from_secs(10)), "all six settle once the writes are done");
+    assert_eq!(metrics.record.recorded.load(Relaxed), 5);
+    handle.finish().await;
+    let lines: usize = std::fs::read_dir(dir).unwrap().map(|e| e.unwrap().path()).filter(|p| p.extension().is_some_and(|x| x == "jsonl")).map(|p| std::fs::read_to_string(p).unwrap().lines().count()).sum();
+    assert_eq!(lines, 5);
+}

@@ -113,7 +113,17 @@ pub struct Snapshots {
     pub fingerprint: Fingerprint,
     /// Stamps each snapshot, which bounds the recording a restart reads.
     pub clock: DaemonClock,
+    /// The recording the snapshots go with. A snapshot is written only
+    /// once the recording has settled every record offered before it was
+    /// taken: a restart replays the recording's tail after the snapshot,
+    /// and a record the snapshot covers but the recording lacks would
+    /// make the replayed state differ from the one that was lost.
+    pub recorder: Option<super::record::Recorder>,
 }
+
+/// How long a snapshot waits for the recording to catch up before it is
+/// given up (the next one will try again; the older snapshot stays).
+const SETTLE_LIMIT: Duration = Duration::from_secs(5);
 
 pub struct EngineTask<T: Tracker> {
     pub tracker: T,
@@ -210,9 +220,17 @@ impl<T: Tracker> EngineTask<T> {
     /// Starts writing a snapshot on a blocking thread.
     fn start_snapshot(&self, fin: bool) -> Option<tokio::task::JoinHandle<()>> {
         let (bytes, feed_time) = self.encode_snapshot()?;
-        let dir = self.snapshots.as_ref()?.dir.clone();
+        let s = self.snapshots.as_ref()?;
+        let dir = s.dir.clone();
+        let recording = s.recorder.clone().map(|r| (r.mark(), r));
         Some(tokio::task::spawn_blocking(move || {
             let started = Instant::now();
+            if let Some((mark, r)) = recording
+                && !r.wait_settled(mark, SETTLE_LIMIT)
+            {
+                tracing::warn!(feed_time = %feed_time, "snapshot not written: the recording has not caught up with the records it covers after {} s", SETTLE_LIMIT.as_secs());
+                return;
+            }
             match dir.write(&bytes, feed_time) {
                 Ok(path) if fin => {
                     tracing::info!(file = %path.display(), bytes = bytes.len(), feed_time = %feed_time, seconds = started.elapsed().as_secs_f64(), "snapshot written at shutdown")

@@ -234,15 +234,21 @@ impl IngestContext {
         if rec.time().secs_since(now).abs() > self.max_time_offset_s {
             return self.rejected(&Reject { reason: RejectReason::ImplausibleTime, sensor: Some(s) }, src, now, tally);
         }
-        // A copy for the recording (no heap: a report's id is shared).
-        let copy = self.recorder.as_ref().map(|_| rec.clone());
-        match self.tx.try_send(Arrival { rec, at: now }) {
-            Ok(()) => {
+        // The recording is offered the record before the engine can see
+        // it, so that a snapshot, which waits for the recording to settle
+        // every record offered before it, never covers a record that the
+        // recording has yet to get (a restart would then replay a tail
+        // without it). A slot is reserved first: a record the ingest
+        // queue refuses is neither tracked nor recorded.
+        match self.tx.try_reserve() {
+            Ok(permit) => {
+                if let Some(r) = &self.recorder {
+                    // No heap: a report's id is shared.
+                    r.offer(rec.clone(), now);
+                }
+                permit.send(Arrival { rec, at: now });
                 c.accepted.fetch_add(1, Relaxed);
                 tally.accepted += 1;
-                if let (Some(r), Some(rec)) = (&self.recorder, copy) {
-                    r.offer(rec, now);
-                }
             }
             Err(_) => {
                 self.metrics.dropped_ingest_queue.fetch_add(1, Relaxed);

@@ -457,7 +457,7 @@ async fn run_from<T: Tracker>(
         log: Mutex::new(LogLimiter::new(s.bad_input_log_interval_s)),
         cancel: shutdown.clone(),
         tracker: ingest_tasks.clone(),
-        recorder,
+        recorder: recorder.clone(),
     });
     ingest_tasks.spawn(ingest::udp_task(ctx.clone(), listeners.udp));
     if let (Some(sock), Some(table)) = (listeners.asterix, sources) {
@@ -497,6 +497,7 @@ async fn run_from<T: Tracker>(
                 interval: Duration::from_secs_f64(r.snapshot_interval_s),
                 fingerprint: Fingerprint::of(&cfg),
                 clock,
+                recorder: recorder.clone(),
             }),
             batches: batch_rx,
             control: control_rx,

@@ -297,12 +297,20 @@ struct Queue {
     /// Signalled when the first record goes into an empty queue, and at
     /// stop.
     ready: Condvar,
+    /// Signalled each time the writer settles a batch.
+    settled: Condvar,
     cap: usize,
 }
 
 struct Waiting {
     items: Vec<Entry>,
     stop: bool,
+    /// Records offered so far, queued or refused.
+    offered: u64,
+    /// Of those, the ones settled: written to the file (handed to the
+    /// operating system), refused, or given up after a write error. In
+    /// offer order, as the writer takes them.
+    settled: u64,
 }
 
 impl Queue {
@@ -325,7 +333,9 @@ impl Recorder {
     /// lock held only for a push or a swap.
     pub fn offer(&self, rec: Record, received: Timestamp) {
         let mut q = self.queue.lock();
+        q.offered += 1;
         if q.items.len() >= self.queue.cap {
+            q.settled += 1;
             drop(q);
             self.metrics.record.queue_full.fetch_add(1, Relaxed);
             return;
@@ -336,6 +346,29 @@ impl Recorder {
         if was_empty {
             self.queue.ready.notify_one();
         }
+    }
+
+    /// The number of records offered so far: a mark for
+    /// [`Recorder::wait_settled`].
+    pub fn mark(&self) -> u64 {
+        self.queue.lock().offered
+    }
+
+    /// Waits until the writer has settled the first `mark` records offered
+    /// (written them to the file, or counted them as not recorded), at
+    /// most `limit`. Returns whether it has. Blocking: call it off the
+    /// async workers.
+    pub fn wait_settled(&self, mark: u64, limit: Duration) -> bool {
+        let deadline = std::time::Instant::now() + limit;
+        let mut q = self.queue.lock();
+        while q.settled < mark {
+            let left = deadline.saturating_duration_since(std::time::Instant::now());
+            if left.is_zero() {
+                return false;
+            }
+            q = self.queue.settled.wait_timeout(q, left).unwrap_or_else(PoisonError::into_inner).0;
+        }
+        true
     }
 }
 
@@ -632,6 +665,8 @@ impl Writer {
                 break;
             }
             self.write(&batch, clock.now());
+            queue.lock().settled += batch.len() as u64;
+            queue.settled.notify_all();
             batch.clear();
             self.tick(clock.now());
         }
@@ -642,7 +677,7 @@ impl Writer {
 
 /// Starts the writer thread on `disk` with the `[record]` settings.
 pub fn start(r: &RecordConfig, disk: Box<dyn Disk>, sensors: SensorTable, metrics: Arc<Metrics>, clock: DaemonClock, log_interval_s: f64) -> io::Result<(Recorder, RecordHandle)> {
-    let queue = Arc::new(Queue { state: Mutex::new(Waiting { items: Vec::with_capacity(r.queue), stop: false }), ready: Condvar::new(), cap: r.queue });
+    let queue = Arc::new(Queue { state: Mutex::new(Waiting { items: Vec::with_capacity(r.queue), stop: false, offered: 0, settled: 0 }), ready: Condvar::new(), settled: Condvar::new(), cap: r.queue });
     let writer = Writer::new(disk, sensors, WriterSettings::new(r, log_interval_s), metrics.clone());
     let q = queue.clone();
     let thread = std::thread::Builder::new().name("skerry-record".into()).spawn(move || writer.run(q, clock))?;
