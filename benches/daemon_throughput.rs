@@ -8,7 +8,7 @@
 //!    arrive and at what rate the daemon takes them.
 //! 2. Latency from send to a subscriber's track record, stage by stage
 //!    (datagram → engine task → tracker output → subscriber; see
-//!    BENCHMARKS-latency.md), with the default 1 s reorder window and a
+//!    BENCHMARKS.md), with the default 1 s reorder window and a
 //!    50 ms one: the transport alone (the Echo stand-in tracker) at
 //!    20 000 plots/s, and the real engine on live radar scenes (800
 //!    plots/s from one radar; 20 000 plots/s from eight), for values of

@@ -1,6 +1,6 @@
 //! JPDA speed: the engine with `association = "jpda"` on the busy demo
 //! harbour (GNN beside it), and the time of one pathological heavy-clutter
-//! batch. Figures go in BENCHMARKS-jpda.md.
+//! batch. Figures go in BENCHMARKS.md.
 //!
 //! - `jpda/busy_afternoon_{jpda,gnn}`: demo-feeds/busy-afternoon (35
 //!   vessels, two radars, 60 + 45 clutter plots per scan, 8 minutes), the

@@ -12,7 +12,7 @@
 //! - with no snapshot at all: the full replay of the hour.
 //!
 //! Both must give the picture that one run over the whole hour gives
-//! (checked here). Figures go to BENCHMARKS-snapshot.md.
+//! (checked here). Figures go to BENCHMARKS.md.
 //! Run: `cargo bench --bench restore`.
 
 use skerry::config::{Config, RecordConfig};

@@ -2,7 +2,7 @@
 //! per second on one core.
 //!
 //! Run: `cargo bench --bench trade`. The figures for the record are in
-//! BENCHMARKS-trade.md.
+//! BENCHMARKS.md.
 //!
 //! Each benchmark runs twice: timed by the wall clock (criterion's
 //! default) and by the thread's own CPU time (`cpu/` groups), which is

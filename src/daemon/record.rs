@@ -74,7 +74,7 @@ use std::time::Duration;
 /// datagram. A crash of the process loses at most this much of the
 /// recording beyond what the fsync interval already risks. Wake-ups of
 /// the writer thread are dear: at 50 000 plots/s, 20 ms cost the daemon
-/// about +12 % CPU against +8 % for 100 ms (BENCHMARKS-record.md).
+/// about +12 % CPU against +8 % for 100 ms (BENCHMARKS.md).
 pub const LINGER: Duration = Duration::from_millis(100);
 
 /// How often an idle writer looks at the clock (hour change, fsync, stop).

@@ -58,7 +58,7 @@ use super::pda::{PdaParams, PdaPlot, imm_pda_update};
 use super::*;
 
 /// Joint events one batch may enumerate exactly, over all its clusters.
-/// At the measured ~40 ns an event (BENCHMARKS-jpda.md) this is about
+/// At the measured ~40 ns an event (BENCHMARKS.md) this is about
 /// 4 ms of enumeration per batch.
 pub(super) const BATCH_EVENT_BUDGET: u64 = 100_000;
 

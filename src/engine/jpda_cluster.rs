@@ -63,7 +63,7 @@ const BP_MAX_ITER: usize = 200;
 /// Converged when no message changes by more than this.
 const BP_TOL: f64 = 1e-9;
 /// Edge updates allowed for one cluster's belief propagation: bounds the
-/// time of a pathological cluster (a few ms; see BENCHMARKS-jpda.md). At
+/// time of a pathological cluster (a few ms; see BENCHMARKS.md). At
 /// least `BP_MIN_ITER` sweeps are always made.
 const BP_MAX_WORK: usize = 1_000_000;
 const BP_MIN_ITER: usize = 10;
@@ -555,7 +555,7 @@ mod tests {
 
     /// Error of belief propagation against exact enumeration, on random
     /// clusters shaped like the engine's (sparse gates). The figure is
-    /// reported in BENCHMARKS-jpda.md.
+    /// reported in BENCHMARKS.md.
     #[test]
     fn bp_error_against_exact() {
         let mut rng = ChaCha8Rng::seed_from_u64(24);

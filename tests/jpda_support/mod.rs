@@ -181,7 +181,7 @@ pub fn track(g: &Generated, association: Association, prune: bool) -> Vec<TrackR
     let mut cfg =
         Config::from_toml_str(&g.config_toml, "generated", &Default::default()).expect("config");
     cfg.tracking.association = association;
-    // For measuring the batch span's effect (BENCHMARKS-latency.md).
+    // For measuring the batch span's effect (BENCHMARKS.md).
     if let Some(f) = std::env::var("JPDA_BATCH_FRACTION").ok().and_then(|v| v.parse().ok()) {
         cfg.tracking.batch_scan_fraction = f;
     }
