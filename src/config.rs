@@ -163,6 +163,11 @@ pub struct TrackingConfig {
     /// start one are dropped and counted (`skerry_track_starts_dropped_total`),
     /// so heavy clutter cannot make a batch, or the scans after it, slow.
     pub max_new_tracks_per_batch: u32,
+    /// Plots needed to start a tentative track: 2 (a plot no track takes
+    /// waits up to 1.5 scans for a second one in its gate), or 1 (every
+    /// such plot starts one). Never more than `confirm_hits`: with
+    /// `confirm_hits = 1` a track starts on one plot.
+    pub plots_to_start: u32,
     /// Most plots one batch takes; the later plots of a full batch are
     /// dropped and counted (`skerry_plots_dropped_total`). Overload
     /// protection for a radar swamped by clutter or interference: it
@@ -529,6 +534,9 @@ impl Config {
         if t.max_new_tracks_per_batch == 0 {
             return bad("tracking.max_new_tracks_per_batch", "must be at least 1");
         }
+        if !(1..=2).contains(&t.plots_to_start) {
+            return bad("tracking.plots_to_start", format!("must be 1 or 2 (got {})", t.plots_to_start));
+        }
         if t.max_plots_per_batch == 0 {
             return bad("tracking.max_plots_per_batch", "must be at least 1");
         }
@@ -709,6 +717,8 @@ association = "gnn"
             ("max_new_tracks_per_batch = 0", "tracking.max_new_tracks_per_batch"),
             ("max_new_tracks_per_batch = -5", "max_new_tracks_per_batch"),
             ("max_plots_per_batch = 0", "tracking.max_plots_per_batch"),
+            ("plots_to_start = 3", "tracking.plots_to_start"),
+            ("plots_to_start = 0", "tracking.plots_to_start"),
             // (The layered loader reads "yes", "on" and the like as true.)
             ("jpda_pruning = [1]", "jpda_pruning"),
         ] {

@@ -50,12 +50,22 @@ fn run(cfg: &Config, recs: &[Record]) -> (usize, Dropped) {
 fn start_cap_counts_every_dropped_start() {
     let recs = burst(40);
     // Uncapped: every plot starts a track (the scene's premise).
-    let (started, d) = run(&config(&[]), &recs);
+    let one = ("SKERRY__TRACKING__PLOTS_TO_START", "1");
+    let (started, d) = run(&config(&[one]), &recs);
     assert_eq!((started, d), (40, Dropped::default()));
     for (gnn_or_jpda, cap) in [("gnn", 5), ("jpda", 5), ("gnn", 39), ("jpda", 1)] {
-        let cfg = config(&[("SKERRY__TRACKING__ASSOCIATION", gnn_or_jpda), ("SKERRY__TRACKING__MAX_NEW_TRACKS_PER_BATCH", &cap.to_string())]);
+        let cfg = config(&[one, ("SKERRY__TRACKING__ASSOCIATION", gnn_or_jpda), ("SKERRY__TRACKING__MAX_NEW_TRACKS_PER_BATCH", &cap.to_string())]);
         let (started, d) = run(&cfg, &recs);
         assert_eq!(started, cap, "{gnn_or_jpda}");
+        assert_eq!(d, Dropped { plots: 0, starts: 40 - cap as u64 }, "{gnn_or_jpda}");
+    }
+    // Two-plot starts (the default): a lone plot is held as a candidate,
+    // which the cap counts as a start; none of these plots has a second
+    // one, so no track starts, and the cap drops the same plots.
+    for (gnn_or_jpda, cap) in [("gnn", 5), ("jpda", 7)] {
+        let cfg = config(&[("SKERRY__TRACKING__ASSOCIATION", gnn_or_jpda), ("SKERRY__TRACKING__MAX_NEW_TRACKS_PER_BATCH", &cap.to_string())]);
+        let (started, d) = run(&cfg, &recs);
+        assert_eq!(started, 0, "{gnn_or_jpda}");
         assert_eq!(d, Dropped { plots: 0, starts: 40 - cap as u64 }, "{gnn_or_jpda}");
     }
 }
@@ -73,7 +83,7 @@ fn plot_cap_counts_every_dropped_plot() {
         other => other,
     }));
     for assoc in ["gnn", "jpda"] {
-        let cfg = config(&[("SKERRY__TRACKING__ASSOCIATION", assoc), ("SKERRY__TRACKING__MAX_PLOTS_PER_BATCH", "16")]);
+        let cfg = config(&[("SKERRY__TRACKING__PLOTS_TO_START", "1"), ("SKERRY__TRACKING__ASSOCIATION", assoc), ("SKERRY__TRACKING__MAX_PLOTS_PER_BATCH", "16")]);
         let (started, d) = run(&cfg, &recs);
         assert_eq!(started, 16 + 3, "{assoc}");
         assert_eq!(d, Dropped { plots: 40 - 16, starts: 0 }, "{assoc}");

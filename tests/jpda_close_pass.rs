@@ -12,14 +12,15 @@ use std::time::Instant;
 /// error ≈ 33 m, so both plots fall in both gates for 20–60 scans), 40
 /// clutter plots per scan: JPDA (the default, JPDA*) keeps both tracks
 /// without a swap or a break in at least 90% of the runs; GNN and plain
-/// JPDA are printed beside it.
+/// JPDA are printed beside it. 50 seeds (the issue asks for at least
+/// 20): at 20 one run more or less moves the rate by 5 points.
 #[test]
 fn close_pass_seeds() {
     let t0 = Instant::now();
     let n: u64 = std::env::var("JPDA_SEEDS")
         .ok()
         .and_then(|s| s.parse().ok())
-        .unwrap_or(20);
+        .unwrap_or(50);
     let [gnn, jpda, star] = campaign(0..n, Pass::for_seed);
     eprintln!("{}", gnn.line("GNN  "));
     eprintln!("{}", jpda.line("JPDA "));

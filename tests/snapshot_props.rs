@@ -66,7 +66,8 @@ position_sigma_m = 10.0
     for i in 0..vessels {
         let east = rng.random_range(-5000.0..5000.0f64).round();
         let north = rng.random_range(-4000.0..4000.0f64).round();
-        let course = rng.random_range(0.0..360.0f64).round();
+        // Rounded, 359.5 and up would give 360, which a scenario refuses.
+        let course = rng.random_range(0.0..360.0f64).round() % 360.0;
         let speed = rng.random_range(3.0..18.0f64).round();
         s.push_str(&format!("\n[[vessels]]\nname = \"v{i}\"\neast_m = {east:.1}\nnorth_m = {north:.1}\ncourse_deg = {course:.1}\nspeed_kn = {speed:.1}\n"));
         if i % 2 == 0 {

@@ -664,12 +664,7 @@ impl Engine {
                     continue;
                 }
             }
-            if !self.may_start(sensor) {
-                continue;
-            }
-            let idx = self.new_track(&plot.z, &plot.r, plot.det.time, sensor);
-            let t = &self.tracks[idx as usize];
-            out.push(self.record_of(t, plot.det.time, &t.est, Some(sensor)));
+            self.start_or_hold(&plot.z, &plot.r, plot.det.time, sensor, min_gap, out);
         }
         self.jpda = sc;
         let mut plots = batch.plots;

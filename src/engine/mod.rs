@@ -25,9 +25,11 @@
 //! costed by their log-likelihood ratio against a miss and a new track,
 //! and the independent clusters are solved exactly. Each plot updates its
 //! track at the plot's own timestamp. A track takes at most one plot per
-//! sensor per scan; a plot no track takes starts a tentative track, unless
-//! it fell inside the gate of a firm track (a split plot or a multipath
-//! echo of a vessel already held: common practice).
+//! sensor per scan; a plot no track takes may start a tentative track,
+//! unless it fell inside the gate of a firm track (a split plot or a
+//! multipath echo of a vessel already held: common practice). By default
+//! it needs a second plot to do so (`tracking.plots_to_start`,
+//! initiate.rs): a lone plot is held for a scan and then forgotten.
 //!
 //! With `tracking.association = "jpda"` a batch is associated by joint
 //! probabilistic data association instead (jpda_batch.rs: clusters,
@@ -50,6 +52,7 @@ pub mod filter;
 pub mod imm;
 pub mod jpda;
 mod identity;
+mod initiate;
 mod jpda_batch;
 pub mod jpda_cluster;
 pub mod pda;
@@ -60,6 +63,7 @@ pub mod sensors;
 pub mod snapshot;
 pub mod track;
 
+pub use initiate::Candidate;
 pub use snapshot::{EngineState, StateError};
 
 use crate::config::{Association, Config, MotionChoice};
@@ -226,6 +230,13 @@ pub struct Engine {
     jpda: jpda_batch::Jpda,
     /// Candidate tracks of a transponder report (identity.rs).
     report_cand: Vec<u32>,
+    /// `tracking.plots_to_start`: 2, a track starts on a pair of plots
+    /// (initiate.rs); 1, on any plot no track takes.
+    plots_to_start: u32,
+    /// Plots waiting for a second one (initiate.rs).
+    candidates: initiate::Candidates,
+    /// How many cells around a plot's own may hold a candidate it pairs with.
+    candidate_cells: i32,
 }
 
 /// Gates a plot against an IMM prediction made `lead` seconds before the
@@ -361,7 +372,7 @@ impl Engine {
                 SensorKind::Transponder => 2.0 * m.position_sigma_m * m.position_sigma_m,
             })
             .fold(0.0, f64::max);
-        Ok(Engine {
+        let mut e = Engine {
             radii: radii_of_curvature(cfg.site.lat_deg.to_radians()),
             site,
             sensor_state: vec![SensorState::default(); models.len()],
@@ -403,7 +414,12 @@ impl Engine {
             dropped: vec![Dropped::default(); cfg.sensors.len()],
             jpda: jpda_batch::Jpda::new(t.jpda_max_events, t.jpda_pruning),
             report_cand: Vec::new(),
-        })
+            plots_to_start: t.plots_to_start.min(t.confirm_hits),
+            candidates: initiate::Candidates::default(),
+            candidate_cells: 1,
+        };
+        e.candidate_cells = e.candidate_reach_cells();
+        Ok(e)
     }
 
     pub fn sensors(&self) -> &SensorTable {
@@ -594,14 +610,7 @@ impl Engine {
     }
 
     fn new_track(&mut self, z: &Vector2<f64>, r: &Matrix2<f64>, time: Timestamp, sensor: SensorId) -> u32 {
-        let mut p = StateCov::zeros();
-        p.fixed_view_mut::<2, 2>(0, 0).copy_from(r);
-        let v2 = self.init_speed_sigma * self.init_speed_sigma;
-        p[(2, 2)] = v2;
-        p[(3, 3)] = v2;
-        p[(4, 4)] = INIT_TURN_SIGMA * INIT_TURN_SIGMA;
-        let x = StateVec::new(z.x, z.y, 0.0, 0.0, 0.0);
-        let g = Gaussian { x, p };
+        let g = self.start_gaussian(z, r);
         let state = self.imm.init(g, Some(&self.mu0));
         // Every model starts from `g`, so the combined estimate is `g`
         // (what `combine_fast` gives for such a state).
@@ -822,13 +831,7 @@ impl Engine {
                         continue;
                     }
                 }
-                if !self.may_start(sensor) {
-                    continue;
-                }
-                let idx = self.new_track(&plot.z, &plot.r, plot.det.time, sensor);
-                let t = &self.tracks[idx as usize];
-                let g = t.est;
-                out.push(self.record_of(t, plot.det.time, &g, Some(sensor)));
+                self.start_or_hold(&plot.z, &plot.r, plot.det.time, sensor, min_gap, out);
             }
         }
         self.scratch = sc;

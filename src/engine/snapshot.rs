@@ -8,8 +8,8 @@
 //!   identities and conflicts, grid cells, batch stamps), the grid and the
 //!   wide list in their exact order, the identity table, the open batch of
 //!   plots, each sensor's last scan end, the next track number, the batch
-//!   serial, the sweep clock, the feed time reached, the counters and the
-//!   JPDA switches. Hash maps are written sorted by key, so equal engines
+//!   serial, the sweep clock, the feed time reached, the counters, the
+//!   JPDA switches and the track candidates (initiate.rs). Hash maps are written sorted by key, so equal engines
 //!   give equal states, and so equal bytes.
 //! - [`Engine::from_state`] builds what follows from the configuration
 //!   (site frame, sensor models, IMM, lifecycle rules, gate, JPDA limits)
@@ -66,6 +66,10 @@ pub struct EngineState {
     batch_starts: u32,
     /// What the overload limits dropped, by sensor.
     dropped: Vec<Dropped>,
+    /// Plots waiting for a second one (initiate.rs), in creation order,
+    /// used and expired ones included (they are skipped the same way after
+    /// a restore); the grid over them is rebuilt.
+    candidates: Vec<Candidate>,
 }
 
 /// Why a state does not fit the engine a configuration builds.
@@ -135,6 +139,9 @@ impl Engine {
             batch_starts,
             max_plots: _,
             dropped,
+            plots_to_start: _,
+            candidates,
+            candidate_cells: _,
         } = self;
         let mut grid: Vec<((i32, i32), Vec<u32>)> = grid.iter().map(|(c, v)| (*c, v.clone())).collect();
         grid.sort_unstable_by_key(|(c, _)| *c);
@@ -174,6 +181,7 @@ impl Engine {
             jpda_counters: jpda.counters,
             batch_starts: *batch_starts,
             dropped: dropped.clone(),
+            candidates: candidates.list.clone(),
         }
     }
 
@@ -272,6 +280,13 @@ impl Engine {
         }
         e.batch_starts = state.batch_starts;
         e.dropped = state.dropped;
+        if let Some(c) = state.candidates.iter().find(|c| c.sensor as usize >= n_sensors || e.models[c.sensor as usize].radar.is_none()) {
+            return bad(format!("a track candidate at {} names sensor {}, which is no configured radar", c.time, c.sensor));
+        }
+        if state.candidates.iter().any(|c| !(c.z.iter().chain(&c.r).all(|v| v.is_finite()))) {
+            return bad("a track candidate holds a number that is not finite".into());
+        }
+        e.candidates = initiate::Candidates::from_list(state.candidates);
         Ok(e)
     }
 

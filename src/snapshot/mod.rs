@@ -52,7 +52,7 @@ pub use files::{SnapshotDir, SnapshotFile};
 pub use warm::{RestoreReport, WarmStart, replay_recording, warm_start};
 
 pub const MAGIC: [u8; 8] = *b"SKERRYST";
-pub const FORMAT_VERSION: u32 = 1;
+pub const FORMAT_VERSION: u32 = 2;
 pub const HEADER_LEN: usize = 84;
 const CHECKSUM_AT: usize = 76;
 const NONE_TIME: i64 = i64::MIN;
