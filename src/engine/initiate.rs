@@ -58,30 +58,149 @@ impl Candidate {
     }
 }
 
+/// A dense grid over the radars' coverage, for finding the candidates
+/// near a plot. Its cells are at least twice the farthest reach of a
+/// candidate pair, so the four cells nearest a plot (its own and the
+/// neighbours on the sides of the cell it is closer to) hold every
+/// candidate it can pair with: a point within half a cell of the plot
+/// lies in its own cell or in the neighbour on that side, on each axis.
+/// A candidate outside the grid (a plot beyond every radar's range and
+/// reach) goes in a list that every search reads.
+#[derive(Clone, Debug, Default)]
+struct CandidateGrid {
+    x0: f64,
+    y0: f64,
+    cell: f64,
+    nx: usize,
+    ny: usize,
+    cells: Vec<Vec<u32>>,
+    outside: Vec<u32>,
+}
+
+/// Most cells the dense grid has on a side; wider coverage gets larger
+/// cells.
+const MAX_CELLS_PER_SIDE: f64 = 256.0;
+
+impl CandidateGrid {
+    /// A grid over `[x0, x1] × [y0, y1]` for pairs reaching `reach` metres.
+    fn new(x0: f64, y0: f64, x1: f64, y1: f64, reach: f64) -> CandidateGrid {
+        if !(x1 > x0 && y1 > y0 && reach.is_finite()) {
+            return CandidateGrid::default();
+        }
+        let side = (x1 - x0).max(y1 - y0);
+        let cell = (2.0 * reach).max(side / MAX_CELLS_PER_SIDE).max(1.0);
+        let nx = ((x1 - x0) / cell).ceil() as usize + 1;
+        let ny = ((y1 - y0) / cell).ceil() as usize + 1;
+        CandidateGrid { x0, y0, cell, nx, ny, cells: vec![Vec::new(); nx * ny], outside: Vec::new() }
+    }
+
+    /// The cell's column and row, if inside the grid.
+    fn locate(&self, x: f64, y: f64) -> Option<(usize, usize)> {
+        let fx = (x - self.x0) / self.cell;
+        let fy = (y - self.y0) / self.cell;
+        if !(fx >= 0.0 && fy >= 0.0 && fx < self.nx as f64 && fy < self.ny as f64) {
+            return None;
+        }
+        Some((fx as usize, fy as usize))
+    }
+
+    fn file(&mut self, i: u32, x: f64, y: f64) {
+        match self.locate(x, y) {
+            Some((ix, iy)) => self.cells[iy * self.nx + ix].push(i),
+            None => self.outside.push(i),
+        }
+    }
+
+    fn clear(&mut self) {
+        for c in &mut self.cells {
+            c.clear();
+        }
+        self.outside.clear();
+    }
+
+    /// Calls `f` with every candidate filed where a pair with a plot at
+    /// (x, y) can reach: the up to four nearest cells, then the outside
+    /// list. A plot less than half a cell outside the grid reads the
+    /// edge cells beside it; one farther out can reach nothing inside.
+    fn near(&self, x: f64, y: f64, mut f: impl FnMut(u32)) {
+        if self.nx > 0 && self.ny > 0 {
+            let (cols, nc) = near_on_axis((x - self.x0) / self.cell, self.nx);
+            let (rows, nr) = near_on_axis((y - self.y0) / self.cell, self.ny);
+            for &iy in &rows[..nr] {
+                for &ix in &cols[..nc] {
+                    for &i in &self.cells[iy * self.nx + ix] {
+                        f(i);
+                    }
+                }
+            }
+        }
+        for &i in &self.outside {
+            f(i);
+        }
+    }
+}
+
+/// The cells on one axis within half a cell of the coordinate `f` (in
+/// cells from the grid's edge) on a grid of `n` cells: its own and the
+/// nearer neighbour, clipped to the grid.
+fn near_on_axis(f: f64, n: usize) -> ([usize; 2], usize) {
+    let top = n as f64;
+    if !(f >= -0.5 && f < top + 0.5) {
+        return ([0, 0], 0);
+    }
+    if f < 0.0 {
+        return ([0, 0], 1);
+    }
+    if f >= top {
+        return ([n - 1, 0], 1);
+    }
+    let i = f as usize;
+    if f - i as f64 >= 0.5 {
+        if i + 1 < n { ([i, i + 1], 2) } else { ([i, 0], 1) }
+    } else if i > 0 {
+        ([i, i - 1], 2)
+    } else {
+        ([i, 0], 1)
+    }
+}
+
 /// The candidates, in creation order, and a grid of them.
 #[derive(Clone, Debug, Default)]
 pub(crate) struct Candidates {
     pub(crate) list: Vec<Candidate>,
-    grid: CellMap,
+    grid: CandidateGrid,
     /// Entries in `list` when it was last compacted.
     after_compact: usize,
 }
 
 impl Candidates {
-    pub(crate) fn from_list(list: Vec<Candidate>) -> Candidates {
-        let mut c = Candidates { list, grid: CellMap::default(), after_compact: 0 };
-        c.refile();
-        c
+    /// An empty store whose grid covers every radar's range (in the site
+    /// plane) for pairs reaching `reach` metres.
+    pub(crate) fn new(models: &[SensorModel], reach: f64) -> Candidates {
+        let (mut x0, mut y0, mut x1, mut y1) = (f64::INFINITY, f64::INFINITY, f64::NEG_INFINITY, f64::NEG_INFINITY);
+        for m in models {
+            if let Some(r) = &m.radar {
+                let (c, d) = (r.antenna.site_en, m.max_range_m + reach);
+                x0 = x0.min(c.x - d);
+                y0 = y0.min(c.y - d);
+                x1 = x1.max(c.x + d);
+                y1 = y1.max(c.y + d);
+            }
+        }
+        Candidates { list: Vec::new(), grid: CandidateGrid::new(x0, y0, x1, y1, reach), after_compact: 0 }
+    }
+
+    /// Puts back a saved list (the grid is rebuilt).
+    pub(crate) fn restore(&mut self, list: Vec<Candidate>) {
+        self.list = list;
+        self.refile();
     }
 
     fn refile(&mut self) {
-        for v in self.grid.values_mut() {
-            v.clear();
-        }
+        self.grid.clear();
         for (i, c) in self.list.iter().enumerate() {
-            self.grid.entry(cell_of(&Vector2::new(c.z[0], c.z[1]))).or_default().push(i as u32);
+            self.grid.file(i as u32, c.z[0], c.z[1]);
         }
-        self.grid.retain(|_, v| !v.is_empty());
         self.after_compact = self.list.len();
     }
 
@@ -97,7 +216,7 @@ impl Candidates {
 
     fn push(&mut self, c: Candidate) {
         let i = self.list.len() as u32;
-        self.grid.entry(cell_of(&Vector2::new(c.z[0], c.z[1]))).or_default().push(i);
+        self.grid.file(i, c.z[0], c.z[1]);
         self.list.push(c);
     }
 
@@ -108,16 +227,14 @@ impl Candidates {
 }
 
 impl Engine {
-    /// The cells around a plot's own that may hold a candidate it can
-    /// pair with: the reach of the bound in [`Engine::pair_with_candidate`]
-    /// at its widest (the longest-lived candidate, the widest plot errors),
-    /// in whole cells.
-    pub(crate) fn candidate_reach_cells(&self) -> i32 {
+    /// The farthest a candidate pair can be apart and pass the bound in
+    /// [`Engine::pair_with_candidate`]: the longest-lived candidate, the
+    /// widest plot errors (m).
+    pub(crate) fn candidate_reach_m(&self) -> f64 {
         let life = self.models.iter().filter(|m| m.radar.is_some()).map(|m| CANDIDATE_SCANS * m.scan_period_s).fold(0.0, f64::max);
         let v2 = self.init_speed_sigma * self.init_speed_sigma;
         let var = 2.0 * self.max_plot_var + life * life * 2.0 * v2 + 2.0 * self.max_accel_psd * life * life * life / 3.0;
-        let reach = (SECOND_CHANCE_SCALE * self.gate_d2 * var).sqrt();
-        ((reach / CELL_M).ceil() as i32).clamp(1, 64)
+        (SECOND_CHANCE_SCALE * self.gate_d2 * var).sqrt()
     }
 
     /// The state a track started on a plot at `z` with error `r` begins
@@ -159,43 +276,35 @@ impl Engine {
     /// if there is one, starts the track (at the candidate, updated with
     /// `z`) and returns true.
     fn pair_with_candidate(&mut self, z: &Vector2<f64>, r: &Matrix2<f64>, time: Timestamp, sensor: SensorId, min_gap: f64, out: &mut Vec<TrackRecord>) -> bool {
-        let (cx, cy) = cell_of(z);
-        let k = self.candidate_cells;
         let v2 = self.init_speed_sigma * self.init_speed_sigma;
         let mut best: Option<(f64, u32)> = None;
-        for dx in -k..=k {
-            for dy in -k..=k {
-                let Some(v) = self.candidates.grid.get(&(cx + dx, cy + dy)) else { continue };
-                for &i in v {
-                    let c = &self.candidates.list[i as usize];
-                    if !c.live_at(time) {
-                        continue;
-                    }
-                    let dt = time.secs_since(c.time);
-                    // One plot per sensor per scan, as for tracks; a plot
-                    // never pairs with one of its own batch or an earlier
-                    // time.
-                    if dt <= 0.0 || (c.sensor == sensor && dt < min_gap) {
-                        continue;
-                    }
-                    // The bound the grid search uses for tracks, for the
-                    // track the candidate would start (zero velocity, so
-                    // no turn drift).
-                    let (de, dn) = (z.x - c.z[0], z.y - c.z[1]);
-                    let var = c.r[0] + c.r[2] + dt * dt * 2.0 * v2 + 2.0 * self.max_accel_psd * dt * dt * dt / 3.0 + r[(0, 0)] + r[(1, 1)];
-                    if de * de + dn * dn > SECOND_CHANCE_SCALE * self.gate_d2 * var {
-                        continue;
-                    }
-                    let g = self.start_gaussian(&Vector2::new(c.z[0], c.z[1]), &Matrix2::new(c.r[0], c.r[1], c.r[1], c.r[2]));
-                    let state = self.imm.init(g, Some(&self.mu0));
-                    let pred = self.imm.predict_position(&state, dt);
-                    let Some(ll) = imm_gate_position(self.imm.n_models(), &pred, 0.0, z, r, self.gate_d2) else { continue };
-                    if best.is_none_or(|(b, bi)| ll > b || (ll == b && i < bi)) {
-                        best = Some((ll, i));
-                    }
-                }
+        let cands = &self.candidates;
+        cands.grid.near(z.x, z.y, |i| {
+            let c = &cands.list[i as usize];
+            if !c.live_at(time) {
+                return;
             }
-        }
+            let dt = time.secs_since(c.time);
+            // One plot per sensor per scan, as for tracks; a plot never
+            // pairs with one of its own batch or an earlier time.
+            if dt <= 0.0 || (c.sensor == sensor && dt < min_gap) {
+                return;
+            }
+            // The bound the grid search uses for tracks, for the track
+            // the candidate would start (zero velocity, so no turn drift).
+            let (de, dn) = (z.x - c.z[0], z.y - c.z[1]);
+            let var = c.r[0] + c.r[2] + dt * dt * 2.0 * v2 + 2.0 * self.max_accel_psd * dt * dt * dt / 3.0 + r[(0, 0)] + r[(1, 1)];
+            if de * de + dn * dn > SECOND_CHANCE_SCALE * self.gate_d2 * var {
+                return;
+            }
+            let g = self.start_gaussian(&Vector2::new(c.z[0], c.z[1]), &Matrix2::new(c.r[0], c.r[1], c.r[1], c.r[2]));
+            let state = self.imm.init(g, Some(&self.mu0));
+            let pred = self.imm.predict_position(&state, dt);
+            let Some(ll) = imm_gate_position(self.imm.n_models(), &pred, 0.0, z, r, self.gate_d2) else { return };
+            if best.is_none_or(|(b, bi)| ll > b || (ll == b && i < bi)) {
+                best = Some((ll, i));
+            }
+        });
         let Some((_, i)) = best else { return false };
         let c = self.candidates.list[i as usize];
         self.candidates.list[i as usize].used = true;
@@ -228,7 +337,7 @@ mod tests {
     /// the cell of its position (brute force over the definition).
     #[test]
     fn compaction_keeps_the_live_candidates_in_order() {
-        let mut c = Candidates::default();
+        let mut c = Candidates { list: Vec::new(), grid: CandidateGrid::new(-1000.0, -5000.0, 30_000.0, 5000.0, 400.0), after_compact: 0 };
         for i in 0..200 {
             c.push(cand(f64::from(i) * 137.0, f64::from(i) * 0.05));
         }
@@ -241,15 +350,50 @@ mod tests {
         c.compact(now);
         assert_eq!(c.list, want);
         let mut filed = 0;
-        for (cell, v) in &c.grid {
+        for (k, v) in c.grid.cells.iter().enumerate() {
             for &i in v {
                 let x = &c.list[i as usize];
-                assert_eq!(cell_of(&Vector2::new(x.z[0], x.z[1])), *cell);
+                let (ix, iy) = c.grid.locate(x.z[0], x.z[1]).unwrap();
+                assert_eq!(iy * c.grid.nx + ix, k);
                 filed += 1;
             }
             assert!(v.windows(2).all(|w| w[0] < w[1]), "creation order within a cell");
         }
+        filed += c.grid.outside.len();
         assert_eq!(filed, c.list.len());
         assert_eq!(c.live(now), want.len());
+    }
+
+    /// The four-cell search finds every filed point within half a cell of
+    /// the plot (brute force over random points, plots and grids,
+    /// including plots and points outside the grid).
+    #[test]
+    fn the_four_nearest_cells_hold_everything_within_reach() {
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(7);
+        for _ in 0..200 {
+            let reach = rng.random_range(10.0..2000.0);
+            let (x0, y0) = (rng.random_range(-30_000.0..0.0), rng.random_range(-30_000.0..0.0));
+            let g0 = CandidateGrid::new(x0, y0, x0 + rng.random_range(1000.0..60_000.0), y0 + rng.random_range(1000.0..60_000.0), reach);
+            let reach = g0.cell / 2.0;
+            let mut g = g0.clone();
+            let pts: Vec<(f64, f64)> = (0..300).map(|_| (rng.random_range(x0 - 5000.0..x0 + 70_000.0), rng.random_range(y0 - 5000.0..y0 + 70_000.0))).collect();
+            for (i, p) in pts.iter().enumerate() {
+                g.file(i as u32, p.0, p.1);
+            }
+            for _ in 0..50 {
+                let q = pts[rng.random_range(0..pts.len())];
+                let q = (q.0 + rng.random_range(-reach..reach), q.1 + rng.random_range(-reach..reach));
+                let mut seen = std::collections::BTreeSet::new();
+                g.near(q.0, q.1, |i| {
+                    seen.insert(i);
+                });
+                for (i, p) in pts.iter().enumerate() {
+                    if (p.0 - q.0).hypot(p.1 - q.1) <= reach {
+                        assert!(seen.contains(&(i as u32)), "point {p:?} within {reach} m of {q:?} not visited");
+                    }
+                }
+            }
+        }
     }
 }

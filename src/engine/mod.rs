@@ -235,8 +235,6 @@ pub struct Engine {
     plots_to_start: u32,
     /// Plots waiting for a second one (initiate.rs).
     candidates: initiate::Candidates,
-    /// How many cells around a plot's own may hold a candidate it pairs with.
-    candidate_cells: i32,
 }
 
 /// Gates a plot against an IMM prediction made `lead` seconds before the
@@ -416,9 +414,8 @@ impl Engine {
             report_cand: Vec::new(),
             plots_to_start: t.plots_to_start.min(t.confirm_hits),
             candidates: initiate::Candidates::default(),
-            candidate_cells: 1,
         };
-        e.candidate_cells = e.candidate_reach_cells();
+        e.candidates = initiate::Candidates::new(&e.models, e.candidate_reach_m());
         Ok(e)
     }
 

@@ -141,7 +141,6 @@ impl Engine {
             dropped,
             plots_to_start: _,
             candidates,
-            candidate_cells: _,
         } = self;
         let mut grid: Vec<((i32, i32), Vec<u32>)> = grid.iter().map(|(c, v)| (*c, v.clone())).collect();
         grid.sort_unstable_by_key(|(c, _)| *c);
@@ -286,7 +285,7 @@ impl Engine {
         if state.candidates.iter().any(|c| !(c.z.iter().chain(&c.r).all(|v| v.is_finite()))) {
             return bad("a track candidate holds a number that is not finite".into());
         }
-        e.candidates = initiate::Candidates::from_list(state.candidates);
+        e.candidates.restore(state.candidates);
         Ok(e)
     }
 
