@@ -15,6 +15,7 @@
 //! JSON value, as left by a crash or a full disk in the middle of a write.
 //! The writer itself is `daemon::record`.
 
+use crate::feed::tracks::DIGIT_PAIRS as PAIRS;
 use crate::feed::{Record, SensorTable, encode_record};
 use crate::time::Timestamp;
 use std::path::{Path, PathBuf};
@@ -264,17 +265,6 @@ impl SecondText {
     }
 }
 
-/// "00", "01", ... "99".
-const PAIRS: [u8; 200] = {
-    let mut t = [0u8; 200];
-    let mut i = 0;
-    while i < 100 {
-        t[2 * i] = b'0' + (i / 10) as u8;
-        t[2 * i + 1] = b'0' + (i % 10) as u8;
-        i += 1;
-    }
-    t
-};
 
 /// Writes `v` when it is the double nearest to m / 10^k for an integer
 /// m < 10^15 and k ≤ 4 (a radar's range to the decimetre, a bearing to

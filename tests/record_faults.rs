@@ -10,7 +10,7 @@
 mod daemon_support;
 
 use daemon_support::*;
-use skerry::daemon::record::{Disk, FsDisk, Opened, WriteFault};
+use skerry::daemon::record::{Disk, FsDisk, WriteFault};
 use skerry::daemon::replay::{self, Pace, Target};
 use skerry::daemon::{Listeners, run_with_disk};
 use skerry::feed;
@@ -31,27 +31,17 @@ enum Mode {
 }
 
 struct Faulty {
-    inner: FsDisk,
     mode: Arc<Mutex<Mode>>,
     /// Writes that failed.
     faults: Arc<Mutex<usize>>,
 }
 
-impl Disk for Faulty {
-    fn list(&mut self) -> std::io::Result<Vec<(String, u64)>> {
-        self.inner.list()
-    }
-    fn open(&mut self, name: &str) -> std::io::Result<Opened> {
-        self.inner.open(name)
-    }
-    fn ends_with_newline(&mut self) -> std::io::Result<bool> {
-        self.inner.ends_with_newline()
-    }
-    fn write(&mut self, buf: &[u8]) -> Result<(), WriteFault> {
+impl DiskHooks for Faulty {
+    fn write(&mut self, inner: &mut FsDisk, buf: &[u8]) -> Result<(), WriteFault> {
         let mut mode = self.mode.lock().unwrap();
         let first_line = buf.iter().position(|&b| b == b'\n').unwrap_or(buf.len());
         let (room, error) = match *mode {
-            Mode::Healthy => return self.inner.write(buf),
+            Mode::Healthy => return inner.write(buf),
             Mode::Failing => (first_line / 2, std::io::Error::from_raw_os_error(5)),
             Mode::Full(room) => (room, std::io::Error::from_raw_os_error(28)),
         };
@@ -59,7 +49,7 @@ impl Disk for Faulty {
         while n < buf.len() && n >= 2 && (buf[n - 1] == b'\n' || buf[n] == b'\n') {
             n -= 1;
         }
-        self.inner.write(&buf[..n])?;
+        inner.write(&buf[..n])?;
         if let Mode::Full(r) = &mut *mode {
             *r -= n;
         }
@@ -68,15 +58,6 @@ impl Disk for Faulty {
         }
         *self.faults.lock().unwrap() += 1;
         Err(WriteFault { written: n, error })
-    }
-    fn sync(&mut self) -> std::io::Result<()> {
-        self.inner.sync()
-    }
-    fn close(&mut self) -> std::io::Result<()> {
-        self.inner.close()
-    }
-    fn remove(&mut self, name: &str) -> std::io::Result<()> {
-        self.inner.remove(name)
     }
 }
 
@@ -107,7 +88,7 @@ async fn fault_and_recover(fault: Mode) {
     let want = direct(Echo::default(), &lines, &table);
     let mode = Arc::new(Mutex::new(Mode::Healthy));
     let faults = Arc::new(Mutex::new(0));
-    let disk = Faulty { inner: FsDisk::new(dir.path()), mode: mode.clone(), faults: faults.clone() };
+    let disk = HookedDisk::new(dir.path(), Faulty { mode: mode.clone(), faults: faults.clone() });
 
     let listeners = Listeners::loopback().await.unwrap();
     let addrs = listeners.local_addrs().unwrap();

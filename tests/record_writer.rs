@@ -6,9 +6,9 @@
 
 mod daemon_support;
 
-use daemon_support::config;
+use daemon_support::{DiskHooks, HookedDisk, config};
 use skerry::daemon::metrics::Metrics;
-use skerry::daemon::record::{Disk, Entry, FsDisk, Opened, WriteFault, Writer, WriterSettings};
+use skerry::daemon::record::{Disk, Entry, FsDisk, WriteFault, Writer, WriterSettings};
 use skerry::feed::{self, Record};
 use skerry::recording::line_received;
 use skerry::time::Timestamp;
@@ -27,34 +27,16 @@ fn plot(cfg: &skerry::config::Config, time: Timestamp, range_m: f64) -> Record {
 
 /// Counts syncs and closes of the real disk under it.
 struct Counting {
-    inner: FsDisk,
     syncs: Arc<AtomicUsize>,
     closes: Arc<AtomicUsize>,
 }
 
-impl Disk for Counting {
-    fn list(&mut self) -> std::io::Result<Vec<(String, u64)>> {
-        self.inner.list()
-    }
-    fn open(&mut self, name: &str) -> std::io::Result<Opened> {
-        self.inner.open(name)
-    }
-    fn ends_with_newline(&mut self) -> std::io::Result<bool> {
-        self.inner.ends_with_newline()
-    }
-    fn write(&mut self, buf: &[u8]) -> Result<(), WriteFault> {
-        self.inner.write(buf)
-    }
-    fn sync(&mut self) -> std::io::Result<()> {
+impl DiskHooks for Counting {
+    fn sync(&mut self) {
         self.syncs.fetch_add(1, Relaxed);
-        self.inner.sync()
     }
-    fn close(&mut self) -> std::io::Result<()> {
+    fn close(&mut self) {
         self.closes.fetch_add(1, Relaxed);
-        self.inner.close()
-    }
-    fn remove(&mut self, name: &str) -> std::io::Result<()> {
-        self.inner.remove(name)
     }
 }
 
@@ -70,7 +52,7 @@ fn rig(dir: &Path) -> (Rig, Writer) {
     let metrics = Arc::new(Metrics::new(&cfg, ts("2026-05-14T06:00:00Z")));
     let syncs = Arc::new(AtomicUsize::new(0));
     let closes = Arc::new(AtomicUsize::new(0));
-    let disk = Counting { inner: FsDisk::new(dir), syncs: syncs.clone(), closes: closes.clone() };
+    let disk = HookedDisk::new(dir, Counting { syncs: syncs.clone(), closes: closes.clone() });
     let set = WriterSettings::new(cfg.record.as_ref().unwrap(), 10.0);
     let w = Writer::new(Box::new(disk), cfg.sensor_table(), set, metrics.clone());
     (Rig { cfg, metrics, syncs, closes }, w)
@@ -169,38 +151,19 @@ fn fsync_follows_the_interval() {
 
 /// Fails its first write after all but `short` bytes of it.
 struct CutOnce {
-    inner: FsDisk,
     short: Option<usize>,
 }
 
-impl Disk for CutOnce {
-    fn list(&mut self) -> std::io::Result<Vec<(String, u64)>> {
-        self.inner.list()
-    }
-    fn open(&mut self, name: &str) -> std::io::Result<Opened> {
-        self.inner.open(name)
-    }
-    fn ends_with_newline(&mut self) -> std::io::Result<bool> {
-        self.inner.ends_with_newline()
-    }
-    fn write(&mut self, buf: &[u8]) -> Result<(), WriteFault> {
+impl DiskHooks for CutOnce {
+    fn write(&mut self, inner: &mut FsDisk, buf: &[u8]) -> Result<(), WriteFault> {
         match self.short.take() {
             Some(k) => {
                 let n = buf.len() - k;
-                self.inner.write(&buf[..n])?;
+                inner.write(&buf[..n])?;
                 Err(WriteFault { written: n, error: std::io::Error::from_raw_os_error(5) })
             }
-            None => self.inner.write(buf),
+            None => inner.write(buf),
         }
-    }
-    fn sync(&mut self) -> std::io::Result<()> {
-        self.inner.sync()
-    }
-    fn close(&mut self) -> std::io::Result<()> {
-        self.inner.close()
-    }
-    fn remove(&mut self, name: &str) -> std::io::Result<()> {
-        self.inner.remove(name)
     }
 }
 
@@ -213,7 +176,7 @@ fn a_write_cut_short_counts_the_lines_that_reached_the_file() {
         let dir = tempfile::tempdir().unwrap();
         let cfg = config(&[("SKERRY__RECORD__DIR", dir.path().to_str().unwrap())]);
         let metrics = Arc::new(Metrics::new(&cfg, ts("2026-05-14T06:00:00Z")));
-        let disk = CutOnce { inner: FsDisk::new(dir.path()), short: Some(short) };
+        let disk = HookedDisk::new(dir.path(), CutOnce { short: Some(short) });
         let mut w = Writer::new(Box::new(disk), cfg.sensor_table(), WriterSettings::new(cfg.record.as_ref().unwrap(), 10.0), metrics.clone());
         let t = ts("2026-05-14T06:00:01Z");
         w.start(t);
@@ -234,40 +197,22 @@ fn a_write_cut_short_counts_the_lines_that_reached_the_file() {
     }
 }
 
-/// A disk whose writes wait at a gate until the test opens it.
+/// Writes wait at a gate until the test opens it.
 struct Gated {
-    inner: FsDisk,
     gate: Arc<(std::sync::Mutex<bool>, std::sync::Condvar)>,
     entered: Arc<AtomicUsize>,
 }
 
-impl Disk for Gated {
-    fn list(&mut self) -> std::io::Result<Vec<(String, u64)>> {
-        self.inner.list()
-    }
-    fn open(&mut self, name: &str) -> std::io::Result<Opened> {
-        self.inner.open(name)
-    }
-    fn ends_with_newline(&mut self) -> std::io::Result<bool> {
-        self.inner.ends_with_newline()
-    }
-    fn write(&mut self, buf: &[u8]) -> Result<(), WriteFault> {
+impl DiskHooks for Gated {
+    fn write(&mut self, inner: &mut FsDisk, buf: &[u8]) -> Result<(), WriteFault> {
         self.entered.fetch_add(1, Relaxed);
         let (open, cv) = &*self.gate;
         let mut g = open.lock().unwrap();
         while !*g {
             g = cv.wait(g).unwrap();
         }
-        self.inner.write(buf)
-    }
-    fn sync(&mut self) -> std::io::Result<()> {
-        self.inner.sync()
-    }
-    fn close(&mut self) -> std::io::Result<()> {
-        self.inner.close()
-    }
-    fn remove(&mut self, name: &str) -> std::io::Result<()> {
-        self.inner.remove(name)
+        drop(g);
+        inner.write(buf)
     }
 }
 
@@ -285,7 +230,7 @@ async fn settled_marks_follow_the_writes_and_the_refusals() {
     let metrics = Arc::new(Metrics::new(&cfg, ts("2026-05-14T06:00:00Z")));
     let gate = Arc::new((std::sync::Mutex::new(false), std::sync::Condvar::new()));
     let entered = Arc::new(AtomicUsize::new(0));
-    let disk = Gated { inner: FsDisk::new(dir), gate: gate.clone(), entered: entered.clone() };
+    let disk = HookedDisk::new(dir, Gated { gate: gate.clone(), entered: entered.clone() });
     let r = cfg.record.as_ref().unwrap();
     assert_eq!(r.queue, 4);
     let clock = skerry::daemon::clock::DaemonClock::start();

@@ -180,20 +180,24 @@ const POW10_U64: [u64; 20] = {
     t
 };
 
+/// "00", "01", ... "99": the two digits of every number below 100, for
+/// writing numbers two digits at a time (here and in the recording's
+/// line writer).
+pub(crate) const DIGIT_PAIRS: [u8; 200] = {
+    let mut t = [0u8; 200];
+    let mut k = 0;
+    while k < 100 {
+        t[2 * k] = b'0' + (k / 10) as u8;
+        t[2 * k + 1] = b'0' + (k % 10) as u8;
+        k += 1;
+    }
+    t
+};
+
 /// The two decimal digits of `v` (< 100).
 fn pair(v: u64) -> &'static [u8] {
-    const PAIRS: [u8; 200] = {
-        let mut t = [0u8; 200];
-        let mut k = 0;
-        while k < 100 {
-            t[2 * k] = b'0' + (k / 10) as u8;
-            t[2 * k + 1] = b'0' + (k % 10) as u8;
-            k += 1;
-        }
-        t
-    };
     let k = 2 * v as usize;
-    &PAIRS[k..k + 2]
+    &DIGIT_PAIRS[k..k + 2]
 }
 
 /// `f64::round` (half away from zero) without the libm call.

@@ -275,3 +275,56 @@ pub async fn wait_received(addr: SocketAddr, n: f64) {
 pub fn json(tracks: &[TrackRecord]) -> Vec<String> {
     tracks.iter().map(|t| t.to_json()).collect()
 }
+
+/// What a test does around a real recording folder's writes, syncs and
+/// closes ([`HookedDisk`]); by default, nothing.
+pub trait DiskHooks: Send + 'static {
+    /// Stands in for `inner.write(buf)`.
+    fn write(&mut self, inner: &mut skerry::daemon::record::FsDisk, buf: &[u8]) -> Result<(), skerry::daemon::record::WriteFault> {
+        use skerry::daemon::record::Disk;
+        inner.write(buf)
+    }
+    /// Called before each sync.
+    fn sync(&mut self) {}
+    /// Called before each close.
+    fn close(&mut self) {}
+}
+
+/// A recording disk on a real folder: every call goes through to it, the
+/// writes, syncs and closes by way of the test's hooks.
+pub struct HookedDisk<H: DiskHooks> {
+    pub inner: skerry::daemon::record::FsDisk,
+    pub hooks: H,
+}
+
+impl<H: DiskHooks> HookedDisk<H> {
+    pub fn new(dir: &std::path::Path, hooks: H) -> Self {
+        HookedDisk { inner: skerry::daemon::record::FsDisk::new(dir), hooks }
+    }
+}
+
+impl<H: DiskHooks> skerry::daemon::record::Disk for HookedDisk<H> {
+    fn list(&mut self) -> std::io::Result<Vec<(String, u64)>> {
+        self.inner.list()
+    }
+    fn open(&mut self, name: &str) -> std::io::Result<skerry::daemon::record::Opened> {
+        self.inner.open(name)
+    }
+    fn ends_with_newline(&mut self) -> std::io::Result<bool> {
+        self.inner.ends_with_newline()
+    }
+    fn write(&mut self, buf: &[u8]) -> Result<(), skerry::daemon::record::WriteFault> {
+        self.hooks.write(&mut self.inner, buf)
+    }
+    fn sync(&mut self) -> std::io::Result<()> {
+        self.hooks.sync();
+        self.inner.sync()
+    }
+    fn close(&mut self) -> std::io::Result<()> {
+        self.hooks.close();
+        self.inner.close()
+    }
+    fn remove(&mut self, name: &str) -> std::io::Result<()> {
+        self.inner.remove(name)
+    }
+}
