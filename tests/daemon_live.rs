@@ -106,13 +106,7 @@ fn scene() -> (Config, Vec<Record>) {
 }
 
 fn offline(cfg: &Config, recs: &[Record]) -> Vec<TrackRecord> {
-    let mut e = Engine::new(cfg).expect("engine");
-    let mut out = Vec::new();
-    for r in recs {
-        e.handle(r, &mut out);
-    }
-    e.finish(&mut out);
-    out
+    run_engine(cfg, recs)
 }
 
 #[test]

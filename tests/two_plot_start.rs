@@ -11,18 +11,10 @@
 mod daemon_support;
 
 use daemon_support::*;
-use skerry::engine::Engine;
 use skerry::feed::{Detection, Record, TrackRecord, TrackStatus};
 
 fn run(plots_to_start: &str, association: &str, recs: &[Record]) -> Vec<TrackRecord> {
-    let cfg = config(&[("SKERRY__TRACKING__PLOTS_TO_START", plots_to_start), ("SKERRY__TRACKING__ASSOCIATION", association)]);
-    let mut e = Engine::new(&cfg).expect("engine");
-    let mut out = Vec::new();
-    for r in recs {
-        e.handle(r, &mut out);
-    }
-    e.finish(&mut out);
-    out
+    run_engine(&config(&[("SKERRY__TRACKING__PLOTS_TO_START", plots_to_start), ("SKERRY__TRACKING__ASSOCIATION", association)]), recs)
 }
 
 #[test]

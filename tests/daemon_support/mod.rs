@@ -328,3 +328,15 @@ impl<H: DiskHooks> skerry::daemon::record::Disk for HookedDisk<H> {
         self.inner.remove(name)
     }
 }
+
+/// The engine alone over `recs` (in order), then `finish`: every track
+/// record it writes.
+pub fn run_engine(cfg: &Config, recs: &[Record]) -> Vec<TrackRecord> {
+    let mut e = skerry::engine::Engine::new(cfg).expect("engine");
+    let mut out = Vec::new();
+    for r in recs {
+        e.handle(r, &mut out);
+    }
+    e.finish(&mut out);
+    out
+}
