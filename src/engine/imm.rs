@@ -318,20 +318,22 @@ impl Imm {
     /// skipped, since any mixture of one Gaussian is that Gaussian. The
     /// reference above stays the one the filterpy checks pin; the tests
     /// hold the two together.
+    #[inline]
     pub fn predict_fast(&self, s: &ImmState, dt: f64) -> ImmState {
         let n = self.n;
         let same = one_component(s, n);
         let (w, mu) = self.mixing(s, dt);
         // Components past the model count are carried as the reference
         // carries them.
-        let mut out = ImmState { comps: s.comps, mu };
+        let mut out = ImmState { comps: [ZERO_GAUSSIAN; MAX_MODELS], mu };
+        out.comps[n..].copy_from_slice(&s.comps[n..]);
         let mut mixed = Gaussian { x: StateVec::zeros(), p: StateCov::zeros() };
         for j in 0..n {
             let m = &self.models[j];
             let prior = if same {
                 &s.comps[0]
             } else {
-                mix_upper(&s.comps[..n], &w[j][..n], cv_block(m), &mut mixed);
+                mix_for(m, &s.comps[..n], &w[j][..n], &mut mixed);
                 &mixed
             };
             m.predict_upper(&prior.x, &prior.p, dt, &mut out.comps[j]);
@@ -350,50 +352,85 @@ impl Imm {
     }
 
     /// The part of [`Imm::predict_fast`] that gating and status reports
-    /// read ([`PositionPrediction`]), with the same numbers: the same
-    /// mixing, then only the position rows of each model's prediction.
+    /// read ([`PositionPrediction`]), the same to rounding: only the
+    /// position rows of each model's prediction.
     pub fn predict_position(&self, s: &ImmState, dt: f64) -> PositionPrediction {
         let n = self.n;
         let same = one_component(s, n);
         let (w, mu) = self.mixing(s, dt);
         let mut out = PositionPrediction { x: [[0.0; 4]; MAX_MODELS], p: [[0.0; 3]; MAX_MODELS], mu };
-        let g0 = &s.comps[0];
-        if same && self.models[..n].iter().all(|m| m.moves_as_cv(&g0.x)) {
-            // One Gaussian that every model moves as CV does (a new
-            // track): the models differ only in their noise term.
-            let (mean, x) = CV_NO_NOISE.position_upper(&g0.x, &g0.p, dt);
-            for j in 0..n {
-                let q = self.models[j].position_noise(dt);
-                out.x[j] = mean;
-                out.p[j] = [x[0] + q, x[1], x[2] + q];
+        // One Gaussian (a new track) mixes to itself.
+        let (comps, w) = if same { (&s.comps[..1], [[1.0; MAX_MODELS]; MAX_MODELS]) } else { (&s.comps[..n], w) };
+        // The CV transition is linear, so mixing commutes with it:
+        // F (Σ w_i (P_i + d_i d_iᵀ)) Fᵀ = Σ w_i (F P_i Fᵀ + (F d_i)(F d_i)ᵀ)
+        // with F d_i = F x_i − F x̄. Each component's CV position
+        // prediction is formed once and mixed for every CV model (three
+        // entries each instead of the 4×4 block).
+        let mut cv = [([0.0; 4], [0.0; 3]); MAX_MODELS];
+        if self.models[..n].iter().any(|m| cv_block(m) == 4) {
+            let dt = super::filter::sanitize_dt(dt);
+            for (c, part) in comps.iter().zip(cv.iter_mut()) {
+                *part = super::filter::cv_position(&c.x, &c.p, dt);
             }
-            return out;
         }
         let mut mixed = Gaussian { x: StateVec::zeros(), p: StateCov::zeros() };
         for j in 0..n {
             let m = &self.models[j];
-            let prior = if same {
-                g0
+            let wj = &w[j][..comps.len()];
+            if cv_block(m) == 4 {
+                let mut x = [0.0; 4];
+                for ((y, _), &wi) in cv.iter().zip(wj) {
+                    for k in 0..4 {
+                        x[k] += y[k] * wi;
+                    }
+                }
+                let mut p = [0.0; 3];
+                for ((y, g), &wi) in cv.iter().zip(wj) {
+                    if wi == 0.0 {
+                        continue;
+                    }
+                    let (d0, d1) = (y[0] - x[0], y[1] - x[1]);
+                    p[0] += (g[0] + d0 * d0) * wi;
+                    p[1] += (g[1] + d0 * d1) * wi;
+                    p[2] += (g[2] + d1 * d1) * wi;
+                }
+                let q = m.position_noise(dt);
+                out.x[j] = x;
+                out.p[j] = [p[0] + q, p[1], p[2] + q];
             } else {
-                mix_upper(&s.comps[..n], &w[j][..n], cv_block(m), &mut mixed);
-                &mixed
-            };
-            (out.x[j], out.p[j]) = m.position_upper(&prior.x, &prior.p, dt);
+                let prior = if same {
+                    &s.comps[0]
+                } else {
+                    mix_upper::<5>(comps, wj, &mut mixed);
+                    &mixed
+                };
+                (out.x[j], out.p[j]) = m.position_upper(&prior.x, &prior.p, dt);
+            }
         }
         out
     }
 
     /// The same step as [`Imm::update`], equal to rounding, with each
     /// model updated by [`super::filter::update_fast`]'s arithmetic.
+    #[inline]
     pub fn update_fast(&self, pred: &ImmState, z: &Vector2<f64>, r: &Matrix2<f64>) -> Option<(ImmState, f64)> {
         let n = self.n;
-        let mut out = ImmState { comps: pred.comps, mu: [0.0; MAX_MODELS] };
+        let mut out = ImmState { comps: [ZERO_GAUSSIAN; MAX_MODELS], mu: [0.0; MAX_MODELS] };
+        out.comps[n..].copy_from_slice(&pred.comps[n..]);
         let mut log_w = [f64::NEG_INFINITY; MAX_MODELS];
         for j in 0..n {
             // As in the reference: a model that cannot take the
             // measurement keeps its prediction and drops to probability 0.
             match super::filter::update_into(&pred.comps[j], z, r, &mut out.comps[j]) {
-                Some(inn) => log_w[j] = pred.mu[j].ln() + inn.log_likelihood(),
+                Some(inn) => {
+                    // ln μ_j + ln N_j = ln(μ_j / √det S) − d²/2 − ln 2π, in one
+                    // logarithm where the quotient is a normal number (else
+                    // as the reference, which keeps such tiny weights).
+                    let mu = pred.mu[j];
+                    let t = mu / inn.det.sqrt();
+                    let ln_scale = if t >= f64::MIN_POSITIVE { t.ln() } else { mu.ln() - 0.5 * inn.det.ln() };
+                    log_w[j] = ln_scale - 0.5 * inn.d2 - LN_2PI;
+                }
                 None => out.comps[j] = pred.comps[j],
             }
         }
@@ -450,9 +487,12 @@ fn probabilities_from_logs(log_w: &[f64; MAX_MODELS], n: usize, mu: &mut [f64; M
     Some(max + sum.ln())
 }
 
-/// A CV model without process noise: its position prediction is the
-/// transition part that every model moving as CV shares.
-const CV_NO_NOISE: Motion = Motion::ConstantVelocity { accel_psd: 0.0 };
+/// ln 2π, the constant of a bivariate normal density (the double nearest
+/// it, as Python's `math.log(2 * math.pi)` prints it).
+const LN_2PI: f64 = 1.837_877_066_409_345_3;
+
+/// A placeholder component, overwritten before it is read.
+const ZERO_GAUSSIAN: Gaussian = Gaussian { x: StateVec::new(0.0, 0.0, 0.0, 0.0, 0.0), p: StateCov::new(0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0) };
 
 /// How many leading rows and columns of a mixed covariance model `m`'s
 /// prediction reads: 4 for CV (it sets the turn rate to 0), else 5.
@@ -499,7 +539,7 @@ fn one_component(s: &ImmState, n: usize) -> bool {
 /// exactly symmetric, each entry and its mirror being the same products).
 fn moment_match_fast(comps: &[Gaussian], w: &[f64]) -> Gaussian {
     let mut out = Gaussian { x: StateVec::zeros(), p: StateCov::zeros() };
-    mix_upper(comps, w, 5, &mut out);
+    mix_upper::<5>(comps, w, &mut out);
     let p = &mut out.p.data.0;
     for j in 0..5 {
         for i in 0..j {
@@ -510,25 +550,16 @@ fn moment_match_fast(comps: &[Gaussian], w: &[f64]) -> Gaussian {
 }
 
 /// The moment-matched mean (whole) and the upper triangle of the
-/// covariance over its first `d` rows and columns (`d` is 4 or 5) into
-/// `out`; the rest of `out.p` is left as it was.
-fn mix_upper(comps: &[Gaussian], w: &[f64], d: usize, out: &mut Gaussian) {
+/// covariance over its first `D` rows and columns (4 or 5; a constant so
+/// that the loops unroll) into `out`; the rest of `out.p` is left as it
+/// was.
+#[inline(always)]
+fn mix_upper<const D: usize>(comps: &[Gaussian], w: &[f64], out: &mut Gaussian) {
     let mut x = StateVec::zeros();
     for (c, &wi) in comps.iter().zip(w) {
         x += c.x * wi;
     }
     out.x = x;
-    if d == 4 {
-        mix_block::<4>(comps, w, &x, &mut out.p);
-    } else {
-        mix_block::<5>(comps, w, &x, &mut out.p);
-    }
-}
-
-/// The covariance part of [`mix_upper`]; `D` a constant so that the loops
-/// unroll.
-#[inline(always)]
-fn mix_block<const D: usize>(comps: &[Gaussian], w: &[f64], x: &StateVec, out: &mut StateCov) {
     let mut p = [[0.0; D]; D];
     for (c, &wi) in comps.iter().zip(w) {
         if wi == 0.0 {
@@ -542,9 +573,19 @@ fn mix_block<const D: usize>(comps: &[Gaussian], w: &[f64], x: &StateVec, out: &
             }
         }
     }
-    let o = &mut out.data.0;
+    let o = &mut out.p.data.0;
     for j in 0..D {
         o[j][..=j].copy_from_slice(&p[j][..=j]);
+    }
+}
+
+/// [`mix_upper`] over the block model `m`'s prediction reads
+/// ([`cv_block`]).
+fn mix_for(m: &Motion, comps: &[Gaussian], w: &[f64], out: &mut Gaussian) {
+    if cv_block(m) == 4 {
+        mix_upper::<4>(comps, w, out);
+    } else {
+        mix_upper::<5>(comps, w, out);
     }
 }
 
@@ -644,19 +685,19 @@ mod fast_path_tests {
             if let Err(e) = close_gaussian(&imm.combine_fast(&want), &comb, TOL) {
                 panic!("trial {trial}: {e}");
             }
-            // The position-only prediction: the fast full prediction's
-            // entries (the same arithmetic), hence the reference's to
-            // rounding; and the combined position part.
+            // The position-only prediction against the reference's
+            // position entries, and the combined position part against
+            // the reference's combined prediction.
             let pp = imm.predict_position(&s, dt);
-            assert_eq!(pp, PositionPrediction::of(&got), "trial {trial}");
             if let Err(e) = close_position(&pp, &want, n, TOL) {
                 panic!("trial {trial}: {e}");
             }
             let (x, p) = pp.combine(n);
-            let cf = imm.combine_fast(&got);
-            let want_x = [cf.x[0], cf.x[1], cf.x[2], cf.x[3]];
-            let want_p = [cf.p[(0, 0)], cf.p[(0, 1)], cf.p[(1, 1)]];
-            assert!(x == want_x && p == want_p, "trial {trial}: {x:?} {p:?} vs {want_x:?} {want_p:?}");
+            let one = PositionPrediction { x: [x, [0.0; 4], [0.0; 4]], p: [p, [0.0; 3], [0.0; 3]], mu: [1.0, 0.0, 0.0] };
+            let comb_state = ImmState { comps: [comb; MAX_MODELS], mu: [1.0, 0.0, 0.0] };
+            if let Err(e) = close_position(&one, &comb_state, 1, TOL) {
+                panic!("trial {trial}: combined: {e}");
+            }
         }
     }
 
