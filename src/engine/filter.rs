@@ -625,7 +625,7 @@ pub(crate) struct FastInnovation {
 /// [`innovation`] in closed form for the 2×2 `S`: `S` is positive
 /// definite iff `S₀₀ > 0` and `det S > 0` (Sylvester's criterion), `S⁻¹`
 /// is the adjugate over the determinant and `d² = νᵀ S⁻¹ ν`; the
-/// reference reaches the same numbers through a Cholesky factor, with two
+/// reference reaches the same numbers (to rounding) through a Cholesky factor, with two
 /// square roots and more divisions.
 #[inline(always)]
 fn innovation_fast(g: &Gaussian, z: &Vector2<f64>, r: &Matrix2<f64>) -> Option<FastInnovation> {

@@ -96,8 +96,8 @@ impl PositionPrediction {
     }
 
     /// The moment-matched position and velocity and position covariance
-    /// of the mixture over the first `n` models: the same numbers as
-    /// those entries of [`Imm::combine_fast`] of the full state.
+    /// of the mixture over the first `n` models: those entries of
+    /// [`Imm::combine_fast`] of the full state, to rounding.
     pub fn combine(&self, n: usize) -> ([f64; 4], [f64; 3]) {
         let mut x = [0.0; 4];
         for (c, &wi) in self.x[..n].iter().zip(&self.mu[..n]) {
