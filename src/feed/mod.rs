@@ -154,6 +154,53 @@ pub enum Record {
 }
 
 impl Record {
+    /// Whether `self` and `other` are the same record, each number to
+    /// within one unit in the last place: a decoder's records, written as
+    /// feed lines and read back, must come back so (the fuzz targets and
+    /// their smoke test check it). One ulp, not bit equality, so that the
+    /// check does not depend on the JSON number parser's last bit.
+    pub fn same_within_ulp(&self, other: &Record) -> bool {
+        fn f(x: f64, y: f64) -> bool {
+            x == y || (x.is_finite() && y.is_finite() && x.signum() == y.signum() && x.to_bits().abs_diff(y.to_bits()) <= 1)
+        }
+        fn o(x: Option<f64>, y: Option<f64>) -> bool {
+            match (x, y) {
+                (Some(x), Some(y)) => f(x, y),
+                (None, None) => true,
+                _ => false,
+            }
+        }
+        match (self, other) {
+            (Record::Detection(x), Record::Detection(y)) => {
+                (x.sensor, x.time, x.scan) == (y.sensor, y.time, y.scan) && f(x.range_m, y.range_m) && f(x.bearing_deg, y.bearing_deg) && o(x.radial_speed_mps, y.radial_speed_mps) && o(x.snr_db, y.snr_db)
+            }
+            (Record::ScanEnd(x), Record::ScanEnd(y)) => {
+                (x.sensor, x.time, x.scan) == (y.sensor, y.time, y.scan)
+                    && match (x.sector_deg, y.sector_deg) {
+                        (Some([p, q]), Some([r, s])) => f(p, r) && f(q, s),
+                        (None, None) => true,
+                        _ => false,
+                    }
+            }
+            (Record::Report(x), Record::Report(y)) => {
+                let v = |r: &Report| r.vessel.as_deref().map(|v| (v.name.clone(), v.ship_type, v.length_m, v.beam_m));
+                (x.sensor, x.time, &x.id) == (y.sensor, y.time, &y.id)
+                    && f(x.lat_deg, y.lat_deg)
+                    && f(x.lon_deg, y.lon_deg)
+                    && o(x.sog_kn, y.sog_kn)
+                    && o(x.cog_deg, y.cog_deg)
+                    && o(x.heading_deg, y.heading_deg)
+                    && match (v(x), v(y)) {
+                        (Some((n1, t1, l1, b1)), Some((n2, t2, l2, b2))) => n1 == n2 && t1 == t2 && o(l1, l2) && o(b1, b2),
+                        (None, None) => true,
+                        _ => false,
+                    }
+            }
+            _ => false,
+        }
+
+    }
+
     pub fn time(&self) -> Timestamp {
         match self {
             Record::Detection(d) => d.time,
