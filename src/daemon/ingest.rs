@@ -405,29 +405,58 @@ fn lost_fragments(dec: &AisDecoder) -> [u64; 2] {
     [c.rejected(R::FragmentTimeout), c.rejected(R::FragmentAbandoned)]
 }
 
-/// The ASTERIX receive loop (`serve.asterix_udp`), until cancelled.
-pub async fn asterix_task(ctx: Arc<IngestContext>, sock: tokio::net::UdpSocket, mut dec: AsterixDecoder) {
-    let mut buf = vec![0u8; (ctx.max_record_bytes + 1).clamp(2, 65_536)];
-    loop {
-        tokio::select! {
-            biased;
-            _ = ctx.cancel.cancelled() => break,
-            r = sock.recv_from(&mut buf) => match r {
-                Ok((n, src)) => {
-                    let now = ctx.clock.now();
-                    ctx.asterix_datagram(&mut dec, &buf[..n], Some(src), now);
-                }
-                Err(e) => tracing::debug!(error = %e, "asterix udp receive error"),
-            }
-        }
+/// What one UDP listener does with its datagrams: JSON lines or
+/// protobuf (`serve.udp_addr`), ASTERIX (`serve.asterix_udp`) or NMEA (a
+/// transponder's `nmea_udp`).
+trait Listener {
+    /// For the logs.
+    const NAME: &'static str;
+    fn datagram(&mut self, ctx: &IngestContext, buf: &[u8], src: SocketAddr, now: Timestamp);
+    /// Whether [`Listener::second`] has work: it runs once a second while
+    /// it does.
+    fn wants_second(&self) -> bool {
+        false
     }
-    tracing::debug!("asterix ingest stopped");
+    fn second(&mut self, _ctx: &IngestContext, _now: Timestamp) {}
 }
 
-/// The NMEA receive loop of one transponder sensor, until cancelled.
+struct JsonOrProto;
+
+impl Listener for JsonOrProto {
+    const NAME: &'static str = "udp";
+    fn datagram(&mut self, ctx: &IngestContext, buf: &[u8], src: SocketAddr, now: Timestamp) {
+        ctx.datagram(buf, Some(src), now);
+    }
+}
+
+impl Listener for AsterixDecoder {
+    const NAME: &'static str = "asterix";
+    fn datagram(&mut self, ctx: &IngestContext, buf: &[u8], src: SocketAddr, now: Timestamp) {
+        ctx.asterix_datagram(self, buf, Some(src), now);
+    }
+}
+
 /// Fragment sets left incomplete are dropped once a second, so a lost
 /// fragment is counted even when the receiver then falls silent.
-pub async fn nmea_task(ctx: Arc<IngestContext>, sock: tokio::net::UdpSocket, mut dec: AisDecoder) {
+impl Listener for AisDecoder {
+    const NAME: &'static str = "nmea";
+    fn datagram(&mut self, ctx: &IngestContext, buf: &[u8], src: SocketAddr, now: Timestamp) {
+        ctx.nmea_datagram(self, buf, Some(src), now);
+    }
+    fn wants_second(&self) -> bool {
+        self.pending_fragments() > 0
+    }
+    fn second(&mut self, ctx: &IngestContext, now: Timestamp) {
+        let before = lost_fragments(self);
+        self.expire(now);
+        ctx.count_lost(self, before, None, now, &mut Tally::default());
+    }
+}
+
+/// One UDP listener's receive loop, until cancelled.
+async fn receive<L: Listener>(ctx: Arc<IngestContext>, sock: tokio::net::UdpSocket, mut l: L) {
+    // One byte more than the limit: a longer datagram is cut there and
+    // still seen as too long.
     let mut buf = vec![0u8; (ctx.max_record_bytes + 1).clamp(2, 65_536)];
     let mut tick = tokio::time::interval(std::time::Duration::from_secs(1));
     tick.set_missed_tick_behavior(tokio::time::MissedTickBehavior::Delay);
@@ -436,47 +465,31 @@ pub async fn nmea_task(ctx: Arc<IngestContext>, sock: tokio::net::UdpSocket, mut
             biased;
             _ = ctx.cancel.cancelled() => break,
             r = sock.recv_from(&mut buf) => match r {
-                Ok((n, src)) => {
-                    let now = ctx.clock.now();
-                    ctx.nmea_datagram(&mut dec, &buf[..n], Some(src), now);
-                }
-                Err(e) => tracing::debug!(error = %e, "nmea udp receive error"),
+                Ok((n, src)) => l.datagram(&ctx, &buf[..n], src, ctx.clock.now()),
+                // ICMP errors surface here on some systems; keep going.
+                Err(e) => tracing::debug!(error = %e, "{} receive error", L::NAME),
             },
-            _ = tick.tick(), if dec.pending_fragments() > 0 => {
-                let before = lost_fragments(&dec);
-                let now = ctx.clock.now();
-                dec.expire(now);
-                let mut tally = Tally::default();
-                ctx.count_lost(&dec, before, None, now, &mut tally);
-            }
+            _ = tick.tick(), if l.wants_second() => l.second(&ctx, ctx.clock.now()),
         }
     }
-    tracing::debug!(sensor = ctx.sensors.name(dec.sensor()), "nmea ingest stopped");
+    tracing::debug!("{} ingest stopped", L::NAME);
 }
 
-/// The UDP receive loop, until cancelled.
+/// The ASTERIX receive loop (`serve.asterix_udp`), until cancelled.
+pub async fn asterix_task(ctx: Arc<IngestContext>, sock: tokio::net::UdpSocket, dec: AsterixDecoder) {
+    receive(ctx, sock, dec).await
+}
+
+/// The NMEA receive loop of one transponder sensor, until cancelled.
+pub async fn nmea_task(ctx: Arc<IngestContext>, sock: tokio::net::UdpSocket, dec: AisDecoder) {
+    let sensor = dec.sensor();
+    receive(ctx.clone(), sock, dec).await;
+    tracing::debug!(sensor = ctx.sensors.name(sensor), "nmea ingest of this sensor stopped");
+}
+
+/// The JSON / protobuf receive loop (`serve.udp_addr`), until cancelled.
 pub async fn udp_task(ctx: Arc<IngestContext>, sock: tokio::net::UdpSocket) {
-    // One byte more than the limit, to see that a datagram is too long.
-    let mut buf = vec![0u8; (ctx.max_record_bytes + 1).clamp(2, 65_536)];
-    loop {
-        tokio::select! {
-            biased;
-            _ = ctx.cancel.cancelled() => break,
-            r = sock.recv_from(&mut buf) => match r {
-                Ok((n, src)) => {
-                    let now = ctx.clock.now();
-                    // The buffer is one byte longer than the limit: a longer
-                    // datagram is cut there and still seen as too long.
-                    ctx.datagram(&buf[..n], Some(src), now);
-                }
-                Err(e) => {
-                    // ICMP errors surface here on some systems; keep going.
-                    tracing::debug!(error = %e, "udp receive error");
-                }
-            }
-        }
-    }
-    tracing::debug!("udp ingest stopped");
+    receive(ctx, sock, JsonOrProto).await
 }
 
 /// The gRPC ingest service.
