@@ -13,8 +13,9 @@
 //!   same record (CONTRACT.md §1 ranges and types; numbers to within an
 //!   ulp, see `Record::same_within_ulp`).
 
+mod trade_support;
+
 use proptest::prelude::*;
-use skerry::config::Config;
 use skerry::daemon::clock::DaemonClock;
 use skerry::daemon::ingest::{IngestContext, LogLimiter};
 use skerry::daemon::metrics::Metrics;
@@ -26,69 +27,9 @@ use skerry::time::Timestamp;
 use std::sync::Arc;
 use std::sync::Mutex;
 use std::sync::atomic::Ordering::Relaxed;
+use trade_support::{ais_lines, asterix_seeds, config};
 
-const ASTERIX: &str = include_str!("fixtures/asterix_cases.json");
-const AIS: &str = include_str!("fixtures/ais_session.json");
 
-const CONFIG: &str = r#"
-[site]
-lat_deg = 56.45
-lon_deg = 7.35
-
-[[sensors]]
-id = "north-mast"
-kind = "radar"
-lat_deg = 56.462
-lon_deg = 7.343
-range_sigma_m = 12.0
-bearing_sigma_deg = 0.3
-max_range_m = 30000.0
-scan_period_s = 2.5
-asterix_sac = 25
-asterix_sic = 201
-
-[[sensors]]
-id = "south-quay"
-kind = "radar"
-lat_deg = 56.431
-lon_deg = 7.392
-range_sigma_m = 15.0
-bearing_sigma_deg = 0.3
-max_range_m = 30000.0
-scan_period_s = 3.0
-asterix_sac = 25
-asterix_sic = 202
-
-[[sensors]]
-id = "harbour-ais"
-kind = "transponder"
-position_sigma_m = 10.0
-
-[tracking]
-association = "gnn"
-"#;
-
-fn config() -> Config {
-    Config::from_toml_str(CONFIG, "smoke.toml", &Default::default()).unwrap()
-}
-
-fn asterix_seeds() -> Vec<Vec<u8>> {
-    let doc: serde_json::Value = serde_json::from_str(ASTERIX).unwrap();
-    doc["cases"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .map(|c| {
-            let h = c["hex"].as_str().unwrap();
-            (0..h.len()).step_by(2).map(|i| u8::from_str_radix(&h[i..i + 2], 16).unwrap()).collect()
-        })
-        .collect()
-}
-
-fn ais_lines() -> Vec<Vec<u8>> {
-    let doc: serde_json::Value = serde_json::from_str(AIS).unwrap();
-    doc["lines"].as_array().unwrap().iter().map(|l| l["line"].as_str().unwrap().as_bytes().to_vec()).collect()
-}
 
 /// A seed with some bytes replaced, flipped, dropped and inserted.
 fn mutate(seed: &[u8], edits: &[(usize, u8, u8)]) -> Vec<u8> {

@@ -8,64 +8,22 @@
 //! by the independent encoder tests/fixtures/make_asterix_fixtures.py;
 //! expected outcomes are the ones those scripts recorded.
 
+mod trade_support;
+
 use serde_json::Value;
-use skerry::config::Config;
 use skerry::feed::{Record, SensorId, TrackRecord};
 use skerry::offline::{InputError, NmeaInput, TradeInputs, feed_order, read_inputs};
 use skerry::time::Timestamp;
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 use std::process::Command;
+use trade_support::{AIS, ASTERIX, CONFIG, config};
 
-const AIS: &str = include_str!("fixtures/ais_session.json");
-const ASTERIX: &str = include_str!("fixtures/asterix_cases.json");
 
 /// The fixtures' radars (names and SAC/SIC from asterix_cases.json) and a
 /// transponder receiver.
-const CONFIG: &str = r#"
-[site]
-name = "Brannoch Sound (invented)"
-lat_deg = 56.45
-lon_deg = 7.35
-
-[[sensors]]
-id = "north-mast"
-kind = "radar"
-lat_deg = 56.462
-lon_deg = 7.343
-range_sigma_m = 12.0
-bearing_sigma_deg = 0.3
-max_range_m = 30000.0
-scan_period_s = 2.5
-asterix_sac = 25
-asterix_sic = 201
-
-[[sensors]]
-id = "south-quay"
-kind = "radar"
-lat_deg = 56.431
-lon_deg = 7.392
-range_sigma_m = 15.0
-bearing_sigma_deg = 0.3
-max_range_m = 30000.0
-scan_period_s = 3.0
-asterix_sac = 25
-asterix_sic = 202
-
-[[sensors]]
-id = "harbour-ais"
-kind = "transponder"
-position_sigma_m = 10.0
-
-[tracking]
-association = "gnn"
-"#;
 
 const AIS_SENSOR: SensorId = 2;
-
-fn config() -> Config {
-    Config::from_toml_str(CONFIG, "test.toml", &Default::default()).unwrap()
-}
 
 fn hex(s: &str) -> Vec<u8> {
     (0..s.len()).step_by(2).map(|i| u8::from_str_radix(&s[i..i + 2], 16).unwrap()).collect()

@@ -2,31 +2,14 @@
 //! to both trade decoders never panic, and whatever they accept still
 //! satisfies the feed contract's ranges (CONTRACT.md §1).
 
+mod trade_support;
+
 use proptest::prelude::*;
+use trade_support::{ais_lines, asterix_seeds};
 use skerry::feed::asterix::{AsterixDecoder, AsterixItem, SourceTable};
 use skerry::feed::nmea::{AisDecoder, AisOutcome};
 use skerry::time::Timestamp;
 
-const ASTERIX: &str = include_str!("fixtures/asterix_cases.json");
-const AIS: &str = include_str!("fixtures/ais_session.json");
-
-fn asterix_seeds() -> Vec<Vec<u8>> {
-    let doc: serde_json::Value = serde_json::from_str(ASTERIX).unwrap();
-    doc["cases"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .map(|c| {
-            let h = c["hex"].as_str().unwrap();
-            (0..h.len()).step_by(2).map(|i| u8::from_str_radix(&h[i..i + 2], 16).unwrap()).collect()
-        })
-        .collect()
-}
-
-fn ais_seeds() -> Vec<Vec<u8>> {
-    let doc: serde_json::Value = serde_json::from_str(AIS).unwrap();
-    doc["lines"].as_array().unwrap().iter().map(|l| l["line"].as_str().unwrap().as_bytes().to_vec()).collect()
-}
 
 fn check_asterix(data: &[u8]) {
     let sources = SourceTable::new([(25, 201, 0), (25, 202, 1)]).unwrap();
@@ -120,7 +103,7 @@ proptest! {
     fn trade_ais_mutated_session_never_panics(edits in proptest::collection::vec((any::<usize>(), any::<u8>(), any::<u8>()), 0..4), which in any::<usize>()) {
         // The whole session through one decoder, with one line mutated, so
         // the static table and reassembly state are exercised too.
-        let seeds = ais_seeds();
+        let seeds = ais_lines();
         let k = which % seeds.len();
         let mut dec = AisDecoder::with_limits(0, 5.0, 8);
         for (i, s) in seeds.iter().enumerate() {
