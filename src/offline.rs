@@ -114,13 +114,27 @@ pub fn feed_order(a: &Record, b: &Record) -> std::cmp::Ordering {
 /// Reads, decodes, screens and orders the feed files (a folder: its
 /// recording files).
 pub fn read_feeds(paths: &[PathBuf], cfg: &Config) -> Result<Feed, ReadError> {
-    let sensors = cfg.sensor_table();
     let mut feed = Feed::default();
     let mut decoded = Vec::new();
+    decode_files(paths, &cfg.sensor_table(), &mut feed, &mut decoded)?;
+    screen_in_order(decoded, cfg, &mut feed);
+    Ok(feed)
+}
+
+/// Decodes the feed files (a folder: its recording files, in time order)
+/// into `out`, counting what they reject in `feed`.
+pub(crate) fn decode_files(paths: &[PathBuf], sensors: &SensorTable, feed: &mut Feed, out: &mut Vec<Record>) -> Result<(), ReadError> {
     for p in &crate::recording::expand_feed_paths(paths)? {
         let bytes = std::fs::read(p).map_err(|source| ReadError::Io { path: p.display().to_string(), source })?;
-        decode_bytes(&bytes, p, &sensors, &mut feed, &mut decoded);
+        decode_bytes(&bytes, p, sensors, feed, out);
     }
+    Ok(())
+}
+
+/// Puts `decoded` in feed order and through the screen (one plausibility
+/// reference, the median time of all of them; duplicates), appending what
+/// it admits to `feed.records` and counting the rest.
+pub(crate) fn screen_in_order(mut decoded: Vec<Record>, cfg: &Config, feed: &mut Feed) {
     let mut times: Vec<Timestamp> = decoded.iter().map(Record::time).collect();
     let reference = median_time(&mut times);
     let mut screen = Screen::new(reference, cfg.feed.max_time_offset_s);
@@ -135,7 +149,6 @@ pub fn read_feeds(paths: &[PathBuf], cfg: &Config) -> Result<Feed, ReadError> {
             Err(reject) => feed.counts.reject(&reject),
         }
     }
-    Ok(feed)
 }
 
 /// Prints the first bad lines and the counts to standard error.

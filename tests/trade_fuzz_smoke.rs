@@ -27,30 +27,7 @@ use skerry::time::Timestamp;
 use std::sync::Arc;
 use std::sync::Mutex;
 use std::sync::atomic::Ordering::Relaxed;
-use trade_support::{ais_lines, asterix_seeds, config};
-
-
-
-/// A seed with some bytes replaced, flipped, dropped and inserted.
-fn mutate(seed: &[u8], edits: &[(usize, u8, u8)]) -> Vec<u8> {
-    let mut v = seed.to_vec();
-    for &(pos, op, b) in edits {
-        if v.is_empty() {
-            v.push(b);
-            continue;
-        }
-        let i = pos % v.len();
-        match op % 4 {
-            0 => v[i] = b,
-            1 => v[i] ^= 1 << (b % 8),
-            2 => {
-                v.remove(i);
-            }
-            _ => v.insert(i, b),
-        }
-    }
-    v
-}
+use trade_support::{ais_lines, asterix_seeds, config, mutate};
 
 fn now() -> Timestamp {
     Timestamp::parse_rfc3339("2026-05-14T06:00:10Z").unwrap()

@@ -5,7 +5,7 @@
 mod trade_support;
 
 use proptest::prelude::*;
-use trade_support::{ais_lines, asterix_seeds};
+use trade_support::{ais_lines, asterix_seeds, mutate};
 use skerry::feed::asterix::{AsterixDecoder, AsterixItem, SourceTable};
 use skerry::feed::nmea::{AisDecoder, AisOutcome};
 use skerry::time::Timestamp;
@@ -46,27 +46,6 @@ fn check_ais(dec: &mut AisDecoder, line: &[u8]) {
         }
         _ => {}
     }
-}
-
-/// A seed with some bytes replaced, some dropped and some inserted.
-fn mutate(seed: &[u8], edits: &[(usize, u8, u8)]) -> Vec<u8> {
-    let mut v = seed.to_vec();
-    for &(pos, op, b) in edits {
-        if v.is_empty() {
-            v.push(b);
-            continue;
-        }
-        let i = pos % v.len();
-        match op % 4 {
-            0 => v[i] = b,
-            1 => v[i] ^= 1 << (b % 8),
-            2 => {
-                v.remove(i);
-            }
-            _ => v.insert(i, b),
-        }
-    }
-    v
 }
 
 proptest! {

@@ -33,12 +33,11 @@
 //!   the [`TradeSummary`], not as a reject.
 //! - With no trade input at all, [`read_inputs`] is [`super::read_feeds`].
 
-use super::{Feed, ReadError, decode_bytes, feed_order, read_feeds, split_lines};
+use super::{Feed, ReadError, decode_files, read_feeds, screen_in_order, split_lines};
 use crate::config::Config;
 use crate::feed::asterix::{AsterixCounts, AsterixDecoder, AsterixItem, SourceTable, SourceTableError};
 use crate::feed::nmea::{AisCounts, AisDecoder, AisOutcome, AisRejectReason};
-use crate::feed::screen::median_time;
-use crate::feed::{Record, Screen, SensorId, SensorKind, SensorTable};
+use crate::feed::{Record, SensorId, SensorKind, SensorTable};
 use crate::time::Timestamp;
 use std::collections::BTreeMap;
 use std::path::PathBuf;
@@ -227,30 +226,14 @@ pub fn read_inputs(paths: &[PathBuf], trade: &TradeInputs, cfg: &Config) -> Resu
     let mut feed = Feed::default();
     let mut summary = TradeSummary::default();
     let mut decoded = Vec::new();
-    for p in paths {
-        let bytes = read(p)?;
-        decode_bytes(&bytes, p, &sensors, &mut feed, &mut decoded);
-    }
+    decode_files(paths, &sensors, &mut feed, &mut decoded)?;
     decode_nmea(trade, &ids, &mut feed, &mut summary, &mut decoded)?;
     if let Some(table) = table {
         decode_asterix(trade, table, &mut feed, &mut summary, &mut decoded)?;
     }
     // As read_feeds: one plausibility reference for every input, then
     // time order and the duplicate screen.
-    let mut times: Vec<Timestamp> = decoded.iter().map(Record::time).collect();
-    let reference = median_time(&mut times);
-    let mut screen = Screen::new(reference, cfg.feed.max_time_offset_s);
-    decoded.sort_by(feed_order);
-    feed.records.reserve(decoded.len());
-    for r in decoded {
-        match screen.admit(&r) {
-            Ok(()) => {
-                feed.counts.accept(r.sensor());
-                feed.records.push(r);
-            }
-            Err(reject) => feed.counts.reject(&reject),
-        }
-    }
+    screen_in_order(decoded, cfg, &mut feed);
     Ok((feed, summary))
 }
 

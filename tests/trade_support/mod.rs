@@ -71,3 +71,24 @@ pub fn ais_lines() -> Vec<Vec<u8>> {
     let doc: serde_json::Value = serde_json::from_str(AIS).unwrap();
     doc["lines"].as_array().unwrap().iter().map(|l| l["line"].as_str().unwrap().as_bytes().to_vec()).collect()
 }
+
+/// A seed with some bytes replaced, flipped, dropped and inserted.
+pub fn mutate(seed: &[u8], edits: &[(usize, u8, u8)]) -> Vec<u8> {
+    let mut v = seed.to_vec();
+    for &(pos, op, b) in edits {
+        if v.is_empty() {
+            v.push(b);
+            continue;
+        }
+        let i = pos % v.len();
+        match op % 4 {
+            0 => v[i] = b,
+            1 => v[i] ^= 1 << (b % 8),
+            2 => {
+                v.remove(i);
+            }
+            _ => v.insert(i, b),
+        }
+    }
+    v
+}
