@@ -158,7 +158,12 @@ struct SensorState {
 #[derive(Default)]
 struct Scratch {
     cand: Vec<u32>,
-    gate_pred: Vec<imm::PositionPrediction>,
+    /// Per column: the track's IMM prediction to the time of the first
+    /// plot of the batch that reached it (`gate_at`), and whether the
+    /// track is still as it was when that prediction was made.
+    gate_pred: Vec<imm::ImmState>,
+    gate_at: Vec<Timestamp>,
+    gate_fresh: Vec<bool>,
     col_track: Vec<u32>,
     pairs: Vec<(u32, u32, f64)>,
     row_alone: Vec<f64>,
@@ -305,6 +310,32 @@ fn imm_gate_position(n_models: usize, pred: &imm::PositionPrediction, lead: f64,
             let (x, p) = (&pred.x[j], &pred.p[j]);
             let pos = Vector2::new(x[0] + x[2] * lead, x[1] + x[3] * lead);
             *inn = filter::innovation_of_position(&pos, &Matrix2::new(p[0], p[1], p[1], p[2]), z, r);
+            inside |= inn.is_some_and(|i| i.d2 <= gate_d2);
+        }
+    }
+    if !inside {
+        return None;
+    }
+    let mut terms = [f64::NEG_INFINITY; imm::MAX_MODELS];
+    for ((term, inn), mu) in terms.iter_mut().zip(&inns).zip(&pred.mu).take(n_models) {
+        if let Some(inn) = inn {
+            *term = mu.ln() + inn.log_likelihood();
+        }
+    }
+    let m = terms.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    Some(m + terms.iter().map(|t| (t - m).exp()).sum::<f64>().ln())
+}
+
+/// [`imm_gate_position`] on a whole predicted state (the GNN path keeps
+/// one per track and batch): the same arithmetic on the same entries.
+fn imm_gate_state(n_models: usize, pred: &imm::ImmState, lead: f64, z: &Vector2<f64>, r: &Matrix2<f64>, gate_d2: f64) -> Option<f64> {
+    let mut inside = false;
+    let mut inns = [None; imm::MAX_MODELS];
+    for (j, inn) in inns.iter_mut().enumerate().take(n_models) {
+        if pred.mu[j] > 0.0 {
+            let c = &pred.comps[j];
+            let pos = Vector2::new(c.x[0] + c.x[2] * lead, c.x[1] + c.x[3] * lead);
+            *inn = filter::innovation_of_position(&pos, &Matrix2::new(c.p[(0, 0)], c.p[(0, 1)], c.p[(0, 1)], c.p[(1, 1)]), z, r);
             inside |= inn.is_some_and(|i| i.d2 <= gate_d2);
         }
     }
@@ -649,10 +680,26 @@ impl Engine {
     /// Updates track `idx` with a position measurement at `time`.
     /// Returns false if the filter refused it.
     fn update_track(&mut self, idx: u32, z: &Vector2<f64>, r: &Matrix2<f64>, time: Timestamp, sensor: SensorId, out: &mut Vec<TrackRecord>) -> bool {
+        self.update_track_from(idx, None, z, r, time, sensor, out)
+    }
+
+    /// [`Engine::update_track`], given the track's prediction to `time`
+    /// if the caller already has it (`predicted`: what `predict_fast`
+    /// of the track's state over `time − t.time` gives, made from the
+    /// track as it is now), which saves a second prediction.
+    #[allow(clippy::too_many_arguments)]
+    fn update_track_from(&mut self, idx: u32, predicted: Option<&imm::ImmState>, z: &Vector2<f64>, r: &Matrix2<f64>, time: Timestamp, sensor: SensorId, out: &mut Vec<TrackRecord>) -> bool {
         let t = &self.tracks[idx as usize];
-        let dt = time.secs_since(t.time).max(0.0);
-        let pred = if dt > 0.0 { self.imm.predict_fast(&t.state, dt) } else { t.state };
-        let Some((state, _ll)) = self.imm.update_fast(&pred, z, r) else { return false };
+        let fresh;
+        let pred = match predicted {
+            Some(p) => p,
+            None => {
+                let dt = time.secs_since(t.time).max(0.0);
+                fresh = if dt > 0.0 { self.imm.predict_fast(&t.state, dt) } else { t.state };
+                &fresh
+            }
+        };
+        let Some((state, _ll)) = self.imm.update_fast(pred, z, r) else { return false };
         let first_hit_this_scan = match (self.models[sensor as usize].kind, self.sensor_state[sensor as usize].last_scan_end) {
             (SensorKind::Transponder, _) => true,
             (_, last_end) => t.last_hit(sensor).is_none_or(|h| Some(h) <= last_end),
@@ -705,6 +752,8 @@ impl Engine {
         let mut sc = std::mem::take(&mut self.scratch);
         sc.col_track.clear();
         sc.gate_pred.clear();
+        sc.gate_at.clear();
+        sc.gate_fresh.clear();
         sc.pairs.clear();
         sc.near_firm.clear();
         sc.near_firm.resize(batch.plots.len(), false);
@@ -749,21 +798,26 @@ impl Engine {
                 }
                 if t.visit != serial {
                     // First plot of this batch to look at this track: give
-                    // it a column and its gating prediction at the batch start.
+                    // it a column and its prediction to this plot's time,
+                    // the whole state, as the update wants it: most
+                    // tracks that get this far take this very plot, and
+                    // then the update reuses it.
                     t.visit = serial;
                     t.col = sc.col_track.len() as u32;
-                    let dt = batch.first.secs_since(t.time).max(0.0);
-                    let pred = if dt > 0.0 { self.imm.predict_position(&t.state, dt) } else { imm::PositionPrediction::of(&t.state) };
+                    let dt = plot.det.time.secs_since(t.time).max(0.0);
+                    let pred = if dt > 0.0 { self.imm.predict_fast(&t.state, dt) } else { t.state };
                     sc.col_track.push(idx);
                     sc.gate_pred.push(pred);
+                    sc.gate_at.push(plot.det.time);
+                    sc.gate_fresh.push(true);
                 }
                 let t = &self.tracks[idx as usize];
                 if t.last_hit(sensor).is_some_and(|h| plot.det.time.secs_since(h) < min_gap) {
                     continue;
                 }
                 let col = t.col as usize;
-                let lead = plot.det.time.secs_since(batch.first);
-                let Some(ll) = imm_gate_position(self.imm.n_models(), &sc.gate_pred[col], lead, &plot.z, &plot.r, self.gate_d2) else { continue };
+                let lead = plot.det.time.secs_since(sc.gate_at[col]);
+                let Some(ll) = imm_gate_state(self.imm.n_models(), &sc.gate_pred[col], lead, &plot.z, &plot.r, self.gate_d2) else { continue };
                 if t.status.is_firm() {
                     sc.near_firm[row] = true;
                 }
@@ -789,8 +843,9 @@ impl Engine {
             let assigned = sc.row_to_col.get(row).copied().flatten();
             let done = match assigned {
                 Some(col) => {
-                    let idx = sc.col_track[col as usize];
-                    let ok = self.update_track(idx, &plot.z, &plot.r, plot.det.time, sensor, out);
+                    let col = col as usize;
+                    let idx = sc.col_track[col];
+                    let ok = self.update_gated(&mut sc, col, idx, plot, sensor, out);
                     if ok {
                         self.stats.plots_associated += 1;
                     }
@@ -804,7 +859,6 @@ impl Engine {
                 // takes a plot inside its manoeuvre gate (twice the
                 // gate distance), so a vessel that turns harder than its
                 // filter foresaw keeps its number (common practice).
-                let lead = plot.det.time.secs_since(batch.first);
                 let mut best: Option<(f64, usize)> = None;
                 for (col, &idx) in sc.col_track.iter().enumerate() {
                     let t = &self.tracks[idx as usize];
@@ -814,7 +868,8 @@ impl Engine {
                     if t.last_hit(sensor).is_some_and(|h| plot.det.time.secs_since(h) < min_gap) {
                         continue;
                     }
-                    if let Some(ll) = imm_gate_position(self.imm.n_models(), &sc.gate_pred[col], lead, &plot.z, &plot.r, SECOND_CHANCE_SCALE * self.gate_d2)
+                    let lead = plot.det.time.secs_since(sc.gate_at[col]);
+                    if let Some(ll) = imm_gate_state(self.imm.n_models(), &sc.gate_pred[col], lead, &plot.z, &plot.r, SECOND_CHANCE_SCALE * self.gate_d2)
                         && best.is_none_or(|(b, _)| ll > b)
                     {
                         best = Some((ll, col));
@@ -823,7 +878,7 @@ impl Engine {
                 if let Some((_, col)) = best {
                     sc.col_taken[col] = true;
                     let idx = sc.col_track[col];
-                    if self.update_track(idx, &plot.z, &plot.r, plot.det.time, sensor, out) {
+                    if self.update_gated(&mut sc, col, idx, plot, sensor, out) {
                         self.stats.plots_associated += 1;
                         continue;
                     }
@@ -836,6 +891,16 @@ impl Engine {
         let mut plots = batch.plots;
         plots.clear();
         self.batch.plots = plots;
+    }
+
+    /// Updates column `col`'s track `idx` with `plot`, reusing the
+    /// column's gating prediction when it was made to this plot's time
+    /// from the track as it still is.
+    fn update_gated(&mut self, sc: &mut Scratch, col: usize, idx: u32, plot: &PendingPlot, sensor: SensorId, out: &mut Vec<TrackRecord>) -> bool {
+        let reuse = sc.gate_fresh[col] && sc.gate_at[col] == plot.det.time;
+        sc.gate_fresh[col] = false;
+        let pred = if reuse { Some(&sc.gate_pred[col]) } else { None };
+        self.update_track_from(idx, pred, &plot.z, &plot.r, plot.det.time, sensor, out)
     }
 
     fn scan_end(&mut self, s: &ScanEnd, out: &mut Vec<TrackRecord>) {
