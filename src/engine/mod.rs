@@ -326,31 +326,62 @@ fn imm_gate_position(n_models: usize, pred: &imm::PositionPrediction, lead: f64,
     Some(m + terms.iter().map(|t| (t - m).exp()).sum::<f64>().ln())
 }
 
-/// [`imm_gate_position`] on a whole predicted state (the GNN path keeps
-/// one per track and batch): the same arithmetic on the same entries.
+/// [`imm_gate`] for the GNN path, which keeps one whole predicted state
+/// per track and batch: the same gate and, to rounding, the same
+/// log-likelihood, with fewer logarithms. Each model's innovation
+/// covariance S is formed as in [`filter::innovation_of_position`];
+/// its d² comes from the closed-form inverse, and the mixture is summed
+/// as `ln Σ μ_j e^{−(d²_j − d²_min)/2} / √det S_j − d²_min/2 − ln 2π`
+/// (one exponential per model and one logarithm in all, where the
+/// reference takes three logarithms per model). A model whose S is not
+/// positive definite takes no part, as there; should the sum not be a
+/// positive finite number, the reference decides.
 fn imm_gate_state(n_models: usize, pred: &imm::ImmState, lead: f64, z: &Vector2<f64>, r: &Matrix2<f64>, gate_d2: f64) -> Option<f64> {
     let mut inside = false;
-    let mut inns = [None; imm::MAX_MODELS];
-    for (j, inn) in inns.iter_mut().enumerate().take(n_models) {
-        if pred.mu[j] > 0.0 {
-            let c = &pred.comps[j];
-            let pos = Vector2::new(c.x[0] + c.x[2] * lead, c.x[1] + c.x[3] * lead);
-            *inn = filter::innovation_of_position(&pos, &Matrix2::new(c.p[(0, 0)], c.p[(0, 1)], c.p[(0, 1)], c.p[(1, 1)]), z, r);
-            inside |= inn.is_some_and(|i| i.d2 <= gate_d2);
+    let mut d2s = [f64::INFINITY; imm::MAX_MODELS];
+    let mut dets = [0.0; imm::MAX_MODELS];
+    let mut d2_min = f64::INFINITY;
+    for j in 0..n_models {
+        if !(pred.mu[j] > 0.0) {
+            continue;
         }
+        let c = &pred.comps[j];
+        let n0 = z.x - (c.x[0] + c.x[2] * lead);
+        let n1 = z.y - (c.x[1] + c.x[3] * lead);
+        let a = c.p[(0, 0)] + r[(0, 0)];
+        let b = 0.5 * ((c.p[(0, 1)] + r[(0, 1)]) + (c.p[(0, 1)] + r[(1, 0)]));
+        let d = c.p[(1, 1)] + r[(1, 1)];
+        let det = a * d - b * b;
+        if !(a > 0.0 && det > 0.0 && det.is_finite()) {
+            continue;
+        }
+        let d2 = (d * n0 * n0 - 2.0 * b * n0 * n1 + a * n1 * n1) / det;
+        if !d2.is_finite() {
+            continue;
+        }
+        inside |= d2 <= gate_d2;
+        d2s[j] = d2;
+        dets[j] = det;
+        d2_min = d2_min.min(d2);
     }
     if !inside {
         return None;
     }
-    let mut terms = [f64::NEG_INFINITY; imm::MAX_MODELS];
-    for ((term, inn), mu) in terms.iter_mut().zip(&inns).zip(&pred.mu).take(n_models) {
-        if let Some(inn) = inn {
-            *term = mu.ln() + inn.log_likelihood();
+    let mut sum = 0.0;
+    for j in 0..n_models {
+        if d2s[j].is_finite() {
+            sum += pred.mu[j] * (-0.5 * (d2s[j] - d2_min)).exp() / dets[j].sqrt();
         }
     }
-    let m = terms.iter().copied().fold(f64::NEG_INFINITY, f64::max);
-    Some(m + terms.iter().map(|t| (t - m).exp()).sum::<f64>().ln())
+    if sum > 0.0 && sum.is_finite() {
+        Some(sum.ln() - 0.5 * d2_min - LN_2PI)
+    } else {
+        imm_gate(n_models, pred, lead, z, r, gate_d2)
+    }
 }
+
+/// ln 2π (the double nearest it).
+const LN_2PI: f64 = 1.837_877_066_409_345_3;
 
 /// A Gaussian holding only the position and velocity `x` and the
 /// position covariance `p` of a [`imm::PositionPrediction::combine`], the
@@ -1053,5 +1084,74 @@ impl Engine {
             }
         }
         self.grid.retain(|_, v| !v.is_empty());
+    }
+}
+
+#[cfg(test)]
+mod gate_tests {
+    //! The GNN path's gate ([`imm_gate_state`]) against the reference
+    //! [`imm_gate`], which forms each model's innovation by
+    //! [`filter::innovation`] (the path the filterpy fixtures pin).
+    use super::*;
+    use crate::engine::filter::fast_path_tests::random_gaussian;
+    use rand::{Rng, SeedableRng};
+    use rand_chacha::ChaCha8Rng;
+
+    #[test]
+    fn fast_gate_is_the_reference_gate() {
+        let mut rng = ChaCha8Rng::seed_from_u64(0x9a7e);
+        let imm = Imm::vessel_default();
+        let n = imm.n_models();
+        let gate_d2 = 13.8155; // χ²(2) at 0.999 (see the gating tests).
+        let (mut inside, mut outside, mut worst) = (0, 0, 0.0f64);
+        for trial in 0..20_000 {
+            let mut s = imm.init(random_gaussian(&mut rng), Some(&imm::VESSEL_MU0));
+            for c in s.comps.iter_mut().skip(1) {
+                *c = random_gaussian(&mut rng);
+            }
+            let mut mu = [rng.random::<f64>(), rng.random::<f64>(), rng.random::<f64>()];
+            if trial % 4 == 0 {
+                mu[trial % 3] = 0.0;
+            }
+            if trial % 7 == 0 {
+                // A model of tiny weight: the reference keeps it in logs.
+                mu[(trial + 1) % 3] = 1e-300;
+            }
+            let total: f64 = mu.iter().sum();
+            s.mu = mu.map(|m| m / total);
+            let lead = if trial % 2 == 0 { 0.0 } else { rng.random_range(0.0..0.2) };
+            let k = trial % 3;
+            let c = &s.comps[k];
+            // Plots near one model's predicted position, at 0–6 sigma.
+            let sig = (c.p[(0, 0)] + c.p[(1, 1)]).sqrt();
+            let z = Vector2::new(c.x[0] + c.x[2] * lead, c.x[1] + c.x[3] * lead) + Vector2::new(rng.random_range(-3.0..3.0), rng.random_range(-3.0..3.0)) * sig;
+            let rr = Matrix2::new(144.0, 3.0, 3.0, 400.0);
+            let want = imm_gate(n, &s, lead, &z, &rr, gate_d2);
+            let got = imm_gate_state(n, &s, lead, &z, &rr, gate_d2);
+            match (want, got) {
+                (Some(w), Some(g)) => {
+                    inside += 1;
+                    let err = (g - w).abs() / w.abs().max(1.0);
+                    worst = worst.max(err);
+                    assert!(err < 1e-9, "trial {trial}: ll {g} vs reference {w}");
+                }
+                (None, None) => outside += 1,
+                _ => {
+                    // Only a d² within rounding of the gate may differ.
+                    let d2 = (0..n)
+                        .filter(|&j| s.mu[j] > 0.0)
+                        .filter_map(|j| {
+                            let mut g = s.comps[j];
+                            g.x[0] += g.x[2] * lead;
+                            g.x[1] += g.x[3] * lead;
+                            filter::innovation(&g, &z, &rr).map(|i| i.d2)
+                        })
+                        .fold(f64::INFINITY, f64::min);
+                    assert!((d2 - gate_d2).abs() < 1e-9 * gate_d2, "trial {trial}: gate decisions differ at d² {d2}");
+                }
+            }
+        }
+        assert!(inside > 2_000 && outside > 2_000, "both sides of the gate tried: {inside} in, {outside} out");
+        assert!(worst < 1e-9, "worst relative ll error {worst}");
     }
 }
