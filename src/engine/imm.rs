@@ -320,12 +320,22 @@ impl Imm {
     /// hold the two together.
     #[inline]
     pub fn predict_fast(&self, s: &ImmState, dt: f64) -> ImmState {
+        let mut out = ImmState { comps: [ZERO_GAUSSIAN; MAX_MODELS], mu: [0.0; MAX_MODELS] };
+        self.predict_fast_into(s, dt, &mut out);
+        out
+    }
+
+    /// [`Imm::predict_fast`] written into `out` (every entry of it set),
+    /// for a caller that keeps the prediction in a table: no copy of the
+    /// state on the way.
+    #[inline]
+    pub fn predict_fast_into(&self, s: &ImmState, dt: f64, out: &mut ImmState) {
         let n = self.n;
         let same = one_component(s, n);
         let (w, mu) = self.mixing(s, dt);
+        out.mu = mu;
         // Components past the model count are carried as the reference
         // carries them.
-        let mut out = ImmState { comps: [ZERO_GAUSSIAN; MAX_MODELS], mu };
         out.comps[n..].copy_from_slice(&s.comps[n..]);
         let mut mixed = Gaussian { x: StateVec::zeros(), p: StateCov::zeros() };
         for j in 0..n {
@@ -338,7 +348,6 @@ impl Imm {
             };
             m.predict_upper(&prior.x, &prior.p, dt, &mut out.comps[j]);
         }
-        out
     }
 
     /// [`Imm::combine`] summing one triangle of the covariance, equal to

@@ -160,7 +160,9 @@ struct Scratch {
     cand: Vec<u32>,
     /// Per column: the track's IMM prediction to the time of the first
     /// plot of the batch that reached it (`gate_at`), and whether the
-    /// track is still as it was when that prediction was made.
+    /// track is still as it was when that prediction was made. The
+    /// predictions past the batch's columns are stale buffers, kept for
+    /// reuse.
     gate_pred: Vec<imm::ImmState>,
     gate_at: Vec<Timestamp>,
     gate_fresh: Vec<bool>,
@@ -782,7 +784,6 @@ impl Engine {
         let miss_ln = (1.0 - pd).ln();
         let mut sc = std::mem::take(&mut self.scratch);
         sc.col_track.clear();
-        sc.gate_pred.clear();
         sc.gate_at.clear();
         sc.gate_fresh.clear();
         sc.pairs.clear();
@@ -836,9 +837,18 @@ impl Engine {
                     t.visit = serial;
                     t.col = sc.col_track.len() as u32;
                     let dt = plot.det.time.secs_since(t.time).max(0.0);
-                    let pred = if dt > 0.0 { self.imm.predict_fast(&t.state, dt) } else { t.state };
+                    // In place at the end of the table, its buffer reused
+                    // from batch to batch.
+                    let col = sc.col_track.len();
+                    if sc.gate_pred.len() <= col {
+                        sc.gate_pred.push(t.state);
+                    }
+                    if dt > 0.0 {
+                        self.imm.predict_fast_into(&t.state, dt, &mut sc.gate_pred[col]);
+                    } else {
+                        sc.gate_pred[col] = t.state;
+                    }
                     sc.col_track.push(idx);
-                    sc.gate_pred.push(pred);
                     sc.gate_at.push(plot.det.time);
                     sc.gate_fresh.push(true);
                 }
