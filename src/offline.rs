@@ -17,6 +17,7 @@
 //! recordings) and merges them with the JSON files ([`read_inputs`]).
 
 pub mod trade;
+pub mod writer;
 
 pub use trade::{InputError, NmeaInput, TradeInputs, TradeSummary, read_inputs};
 
