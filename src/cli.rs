@@ -3,6 +3,7 @@
 
 use crate::config::Config;
 use crate::engine::Engine;
+use crate::feed::tracks::TrackLineWriter;
 use crate::offline::trade::{report_trade_rejects, summary_table};
 use crate::offline::{NmeaInput, TradeInputs, read_inputs, report_rejects};
 use crate::time::Timestamp;
@@ -124,9 +125,11 @@ pub fn track(args: &TrackArgs) -> Result<()> {
     // sink about 64 KiB at a time.
     let mut buf: Vec<u8> = Vec::with_capacity(1 << 17);
     let mut written = 0u64;
+    // Keeps the date-and-time text from one line to the next.
+    let mut lines = TrackLineWriter::new();
     let mut flush = |out: &mut Vec<crate::feed::TrackRecord>, w: &mut Box<dyn Write>, last: bool| -> Result<()> {
         for r in out.drain(..) {
-            r.write_json_bytes(&mut buf);
+            lines.write(&r, &mut buf);
             buf.push(b'\n');
             written += 1;
         }
