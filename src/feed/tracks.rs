@@ -260,21 +260,36 @@ fn round_half_away(x: f64) -> f64 {
 
 /// Appends `s` as a JSON string (RFC 8259 escapes). Bytes of multi-byte
 /// characters are all ≥ 0x80, so copying the others byte by byte keeps
-/// the text valid UTF-8. Eight bytes at a time while none of them needs
-/// an escape (names and sensors never do).
+/// the text valid UTF-8. A string of eight bytes or more that needs no
+/// escape (names and sensors never do) is copied eight bytes at a time,
+/// its last bytes as the (overlapping) last eight.
 fn push_json_str(out: &mut Line<'_>, s: &str) {
+    let b = s.as_bytes();
     out.0.push(b'"');
-    let mut chunks = s.as_bytes().chunks_exact(8);
-    for c in &mut chunks {
-        let w = u64::from_le_bytes([c[0], c[1], c[2], c[3], c[4], c[5], c[6], c[7]]);
-        if needs_escape(w) {
-            push_escaped(out, c);
-        } else {
-            out.0.extend_from_slice(c);
+    if let Some(last) = b.last_chunk::<8>() {
+        let chunks = b.chunks_exact(8);
+        if !needs_escape(u64::from_le_bytes(*last)) && chunks.clone().all(|c| !needs_escape(word(c))) {
+            for c in chunks {
+                out.0.extend_from_slice(c);
+            }
+            let rest = b.len() % 8;
+            if rest > 0 {
+                // The last eight bytes less the ones already written.
+                let at = out.0.len() - (8 - rest);
+                out.0.truncate(at);
+                out.0.extend_from_slice(last);
+            }
+            out.0.push(b'"');
+            return;
         }
     }
-    push_escaped(out, chunks.remainder());
+    push_escaped(out, b);
     out.0.push(b'"');
+}
+
+/// Eight bytes as a little-endian word.
+fn word(c: &[u8]) -> u64 {
+    u64::from_le_bytes([c[0], c[1], c[2], c[3], c[4], c[5], c[6], c[7]])
 }
 
 /// Whether any byte of `w` is a control character (< 0x20), `"` or `\`.
