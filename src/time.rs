@@ -251,6 +251,36 @@ impl Timestamp {
         Some((b, len + 1))
     }
 
+    /// [`Timestamp::write_rfc3339_bytes`] through `cache`, which keeps
+    /// the text of the last second written: track records come in time
+    /// order, so most share the second (and nearly all the day) of the
+    /// record before. The bytes are those of the uncached writer.
+    pub fn write_rfc3339_cached(self, cache: &mut Rfc3339Cache, out: &mut Vec<u8>) {
+        let secs = self.0.div_euclid(NANOS_PER_SEC);
+        let ns = self.0.rem_euclid(NANOS_PER_SEC) as u32;
+        if secs != cache.secs && !cache.set_second(secs) {
+            return self.write_rfc3339_bytes(out);
+        }
+        let b = &mut cache.text;
+        let mut len = 19;
+        if ns != 0 {
+            b[19] = b'.';
+            let head = ns / 100_000_000;
+            b[20] = b'0' + head as u8;
+            let rest = digits8(ns - head * 100_000_000);
+            b[21..29].copy_from_slice(&(rest | ASCII_ZEROS).to_le_bytes());
+            // The fewest digits that represent the fraction exactly: the
+            // last digits sit in the high bytes, so the zero bytes at the
+            // top are the trailing zeros (all eight when `rest` is 0).
+            len = 29 - (rest.leading_zeros() / 8) as usize;
+        }
+        b[len] = b'Z';
+        // The whole buffer, then the tail cut: a copy of constant size.
+        let end = out.len() + len + 1;
+        out.extend_from_slice(b);
+        out.truncate(end);
+    }
+
     /// [`Timestamp::write_rfc3339`] through the standard formatter: the
     /// path for any year, and the reference the fast path is tested
     /// against.
@@ -289,6 +319,88 @@ impl Timestamp {
     pub fn midnight(self) -> Timestamp {
         Timestamp(self.0 - self.0.rem_euclid(86_400 * NANOS_PER_SEC))
     }
+}
+
+/// The date-and-time text of one second, `YYYY-MM-DDTHH:MM:SS`, kept by
+/// [`Timestamp::write_rfc3339_cached`] between calls. Any time may follow
+/// any other (earlier, later, another day): the text is rebuilt from the
+/// day and the second whenever they differ from the cached ones.
+#[derive(Clone, Debug)]
+pub struct Rfc3339Cache {
+    /// The second (since the epoch) whose text is in `text[..19]`;
+    /// `i64::MIN` (no instant's second) when empty.
+    secs: i64,
+    /// The day whose date is in `text[..10]`; `i64::MIN` when empty.
+    day: i64,
+    /// The text, with room behind it for the fraction and the `Z`.
+    text: [u8; 32],
+}
+
+impl Default for Rfc3339Cache {
+    fn default() -> Self {
+        Self::new()
+    }
+}
+
+impl Rfc3339Cache {
+    pub const fn new() -> Self {
+        Rfc3339Cache { secs: i64::MIN, day: i64::MIN, text: *b"0000-00-00T00:00:00.000000000Z\0\0" }
+    }
+
+    /// Makes `text[..19]` the text of second `secs`; false (and the cache
+    /// unchanged) for years outside 0000–9999, which are not cached.
+    fn set_second(&mut self, secs: i64) -> bool {
+        let day = secs.div_euclid(86_400);
+        let sod = secs.rem_euclid(86_400) as u32;
+        let b = &mut self.text;
+        if day != self.day {
+            let (y, m, d) = civil_from_days(day);
+            if !(0..=9999).contains(&y) {
+                return false;
+            }
+            let y = y as u32;
+            b[0..2].copy_from_slice(two_digits(y / 100));
+            b[2..4].copy_from_slice(two_digits(y % 100));
+            b[5..7].copy_from_slice(two_digits(m));
+            b[8..10].copy_from_slice(two_digits(d));
+            self.day = day;
+        }
+        b[11..13].copy_from_slice(two_digits(sod / 3600));
+        b[14..16].copy_from_slice(two_digits(sod / 60 % 60));
+        b[17..19].copy_from_slice(two_digits(sod % 60));
+        self.secs = secs;
+        true
+    }
+}
+
+/// The two decimal digits of `v` (< 100).
+fn two_digits(v: u32) -> &'static [u8] {
+    let k = 2 * v as usize;
+    &crate::feed::tracks::DIGIT_PAIRS[k..k + 2]
+}
+
+/// `'0'` in every byte: added to [`digits8`] it gives ASCII.
+pub(crate) const ASCII_ZEROS: u64 = 0x3030_3030_3030_3030;
+
+/// The eight decimal digits of `x` (< 10⁸, zero padded), one a byte, the
+/// most significant in the lowest byte (so `to_le_bytes` gives them in
+/// reading order), as digit values 0–9 (add [`ASCII_ZEROS`] for text).
+/// Done in all lanes at once (SWAR): two halves of four digits in 32-bit
+/// lanes, split into pairs in 16-bit lanes, then into digits in bytes.
+/// Each step divides by a constant as a multiply and shift that is exact
+/// in its range (x·5243 >> 19 = ⌊x/100⌋ for x < 10⁴, x·103 >> 10 = ⌊x/10⌋
+/// for x < 100, common practice; checked lane by lane in the tests), and
+/// no lane's product reaches the next lane.
+#[inline]
+pub(crate) fn digits8(x: u32) -> u64 {
+    debug_assert!(x < 100_000_000);
+    let hi = x / 10_000;
+    let lo = x - hi * 10_000;
+    let v = hi as u64 | (lo as u64) << 32;
+    let hundreds = ((v * 5243) >> 19) & 0x0000_007f_0000_007f;
+    let v = hundreds | (v - hundreds * 100) << 16;
+    let tens = ((v * 103) >> 10) & 0x000f_000f_000f_000f;
+    tens | (v - tens * 10) << 8
 }
 
 impl fmt::Display for Timestamp {
@@ -378,6 +490,104 @@ mod tests {
         }
         for t in [Timestamp(0), Timestamp(-1), Timestamp(i64::MIN), Timestamp(i64::MAX), Timestamp(i64::MAX - 999_999_999)] {
             assert_eq!(t.to_rfc3339(), fmt(t));
+        }
+    }
+
+    /// xorshift64: reproducible pseudo-random test inputs.
+    fn xorshift(mut x: u64) -> impl FnMut() -> u64 {
+        move || {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            x
+        }
+    }
+
+    #[test]
+    fn eight_digits_against_the_formatter() {
+        // Against `format!("{:08}")`. The two four-digit halves are done
+        // in separate lanes, so every value of each half (with the other
+        // half random) covers every lane input; then random values and
+        // the powers of ten either side.
+        let mut next = xorshift(0x2545_f491_4f6c_dd1d);
+        let mut cases: Vec<u32> = Vec::new();
+        for k in 0..10_000u32 {
+            let other = (next() % 10_000) as u32;
+            cases.extend([k * 10_000 + other, other * 10_000 + k]);
+        }
+        cases.extend((0..20_000).map(|_| (next() % 100_000_000) as u32));
+        for p in [1u32, 10, 100, 1000, 10_000, 100_000, 1_000_000, 10_000_000] {
+            cases.extend([p - 1, p, p + 1]);
+        }
+        cases.push(99_999_999);
+        for x in cases {
+            let text = (digits8(x) | ASCII_ZEROS).to_le_bytes();
+            assert_eq!(std::str::from_utf8(&text).unwrap(), format!("{x:08}"), "{x}");
+        }
+    }
+
+    #[test]
+    fn cached_rfc3339_is_the_uncached_text() {
+        // One cache through a sequence of times, each compared with the
+        // uncached writer (itself checked against the formatter above):
+        // steps within a second, to the next second, across midnight and
+        // the ends of months, years and leap days, far jumps back and
+        // forth, and the fraction at 0, 1 ns and 999 999 999 ns.
+        let at = |s: &str| Timestamp::parse_rfc3339(s).unwrap().unix_nanos();
+        let mut times: Vec<i64> = Vec::new();
+        for base in [
+            "2026-05-14T06:00:02Z",
+            "2026-05-14T23:59:59Z",
+            "2026-12-31T23:59:59Z",
+            "2024-02-28T23:59:59Z",
+            "2024-02-29T23:59:59Z",
+            "2100-02-28T23:59:59Z",
+            "2000-02-29T23:59:59Z",
+            "1999-12-31T23:59:59Z",
+            "1970-01-01T00:00:00Z",
+        ] {
+            let b = at(base);
+            for ns in [0, 1, 10, 999_999_999, 500_000_000, 123_456_789, 0] {
+                times.push(b + ns);
+            }
+            // Into the next second, minute, day (and back again).
+            for ns in [1_000_000_000, 1_000_000_001, 1_999_999_999, 2_000_000_000, 999_999_999, 0, -1, -1_000_000_000] {
+                times.push(b + ns);
+            }
+        }
+        // Forward in small steps over a midnight, then back over it.
+        let m = at("2026-05-14T23:59:58Z");
+        times.extend((0..400).map(|k| m + k * 13_000_001));
+        times.extend((0..400).rev().map(|k| m + k * 13_000_001));
+        // Random jumps, large and small, both ways, and the i64 ends.
+        let mut next = xorshift(0x9e37_79b9_7f4a_7c15);
+        let mut t = m;
+        for _ in 0..20_000 {
+            let r = next();
+            let step = match r % 4 {
+                0 => (r >> 8) as i64 % 1_000_000_000,
+                1 => (r >> 8) as i64 % (3 * 86_400 * NANOS_PER_SEC),
+                2 => -((r >> 8) as i64 % (2 * 86_400 * NANOS_PER_SEC)),
+                _ => (r >> 8) as i64 % (200 * 365 * 86_400 * NANOS_PER_SEC) - 100 * 365 * 86_400 * NANOS_PER_SEC,
+            };
+            // Kept a few seconds inside the i64 range (its ends are below).
+            t = t.saturating_add(step).clamp(i64::MIN + 2 * NANOS_PER_SEC, i64::MAX - 2 * NANOS_PER_SEC);
+            times.push(t);
+            // Often the same second again, with another fraction.
+            times.push(t - t.rem_euclid(NANOS_PER_SEC) + (r >> 34) as i64 % NANOS_PER_SEC);
+        }
+        times.extend([i64::MIN, i64::MIN + 1, 0, -1, i64::MAX, i64::MAX - 999_999_999, 0]);
+        let mut cache = Rfc3339Cache::new();
+        let (mut got, mut want) = (Vec::new(), Vec::new());
+        for &ns in &times {
+            let t = Timestamp(ns);
+            got.clear();
+            want.clear();
+            got.extend_from_slice(b"prefix");
+            want.extend_from_slice(b"prefix");
+            t.write_rfc3339_cached(&mut cache, &mut got);
+            t.write_rfc3339_bytes(&mut want);
+            assert_eq!(String::from_utf8_lossy(&got), String::from_utf8_lossy(&want), "{ns}");
         }
     }
 

@@ -15,6 +15,7 @@
 //!   how many records were written.
 
 use crate::feed::TrackRecord;
+use crate::feed::tracks::TrackLineWriter;
 use std::io::Write;
 use std::sync::mpsc::{Receiver, SyncSender, TryRecvError, sync_channel};
 use std::thread::JoinHandle;
@@ -68,9 +69,11 @@ impl TrackWriter {
             };
             let mut buf: Vec<u8> = Vec::with_capacity(2 * WRITE_AT);
             let mut written = 0u64;
+            // Keeps the date-and-time text from one line to the next.
+            let mut lines = TrackLineWriter::new();
             for mut chunk in rx {
                 for r in chunk.drain(..) {
-                    r.write_json_bytes(&mut buf);
+                    lines.write(&r, &mut buf);
                     buf.push(b'\n');
                     written += 1;
                 }
