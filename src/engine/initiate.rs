@@ -299,6 +299,9 @@ impl Engine {
     /// of the Cholesky `d²` when every term of `var` is ≥ 0; with a
     /// negative variance on a diagonal (no real plot has one) the wider
     /// bound of the grid search for tracks is used instead.
+    // Inlined into the search loop: most candidates stop at the reject,
+    // and the call would cost about as much as the test.
+    #[inline]
     fn pair_likelihood(&self, c: &Candidate, z: &Vector2<f64>, r: &Matrix2<f64>, dt: f64) -> Option<f64> {
         let v2 = self.init_speed_sigma * self.init_speed_sigma;
         let (de, dn) = (z.x - c.z[0], z.y - c.z[1]);
@@ -313,6 +316,7 @@ impl Engine {
 
     /// [`Engine::pair_likelihood`] without its cheap reject: the IMM
     /// started on the candidate, predicted and gated as any track is.
+    #[inline(never)]
     fn pair_likelihood_exact(&self, c: &Candidate, z: &Vector2<f64>, r: &Matrix2<f64>, dt: f64) -> Option<f64> {
         let g = self.start_gaussian(&Vector2::new(c.z[0], c.z[1]), &Matrix2::new(c.r[0], c.r[1], c.r[1], c.r[2]));
         let state = self.imm.init(g, Some(&self.mu0));
