@@ -54,6 +54,19 @@
 //! then column index order. The dense form costs O(n_r·(n_c + n_r))
 //! memory and up to cubic time per cluster: fine for gated scans, where
 //! clusters are a few tens of plots, not meant for one giant cluster.
+//!
+//! Most gated scans are trivial: no pairs, or every cluster a *star* (one
+//! row with any number of columns each in no other pair, or one column
+//! with rows each in no other pair; a lone pair is both). A fast path
+//! recognises that from the pairs' degrees and decides each star by the
+//! same rule, with the same tie-breaking, that the single-row and
+//! single-column cluster cases use, without the union-find and the
+//! counting sort. A connected set of pairs in which every pair has an end
+//! of degree 1 is a star (two ends of degree ≥ 2 in one cluster would be
+//! joined by a path whose first pair has both ends of degree ≥ 2), so the
+//! fast path takes exactly the problems whose clusters would all have gone
+//! to those two cases, and hands every other problem, untouched, to the
+//! general route.
 
 const NONE: usize = usize::MAX;
 
@@ -409,6 +422,45 @@ pub struct SparseAssigner {
     /// Clamped leave-alone costs.
     row_alone: Vec<f64>,
     col_alone: Vec<f64>,
+    /// Fast path: the state of each row and each column.
+    row_star: Vec<Star>,
+    col_star: Vec<Star>,
+    /// Tests set this to send every problem through the general route.
+    no_fast_path: bool,
+    /// Whether the last problem was decided by the fast path (for tests).
+    last_fast: bool,
+}
+
+/// One row's or column's part in the fast path: its clamped leave-alone
+/// cost, how many valid pairs it has, as a star's centre its best pair so
+/// far (key, the other end, raw cost; `other == u32::MAX` for none yet),
+/// and the outcome: the cost a row pays, whether a column is taken.
+#[derive(Clone, Copy, Debug)]
+struct Star {
+    alone: f64,
+    degree: u32,
+    other: u32,
+    key: f64,
+    w: f64,
+    paid: f64,
+    taken: bool,
+}
+
+impl Star {
+    fn new(alone: f64) -> Star {
+        Star { alone, degree: 0, other: u32::MAX, key: f64::INFINITY, w: 0.0, paid: alone, taken: false }
+    }
+
+    /// The cluster cases' rule: the lower key, on a tie the lower index.
+    /// Keys are finite (a finite cost less a clamped leave-alone cost), so
+    /// the first pair offered always wins over none.
+    fn offer(&mut self, key: f64, other: u32, w: f64) {
+        if key < self.key || (key == self.key && other < self.other) {
+            self.key = key;
+            self.other = other;
+            self.w = w;
+        }
+    }
 }
 
 impl SparseAssigner {
@@ -428,9 +480,22 @@ impl SparseAssigner {
     pub fn solve(&mut self, row_alone: &[f64], col_alone: &[f64], pairs: &[(u32, u32, f64)], row_to_col: &mut Vec<Option<u32>>) -> f64 {
         let n_r = row_alone.len();
         let n_c = col_alone.len();
-        let n = n_r + n_c;
         row_to_col.clear();
         row_to_col.resize(n_r, None);
+        self.last_fast = !self.no_fast_path;
+        if self.last_fast {
+            if pairs.is_empty() {
+                // Nothing to choose: the sums the end of this function
+                // makes, in the same order.
+                let rows_total: f64 = row_alone.iter().map(|&a| clamp_alone(a)).sum();
+                let cols_total: f64 = col_alone.iter().map(|&a| clamp_alone(a)).sum();
+                return rows_total + cols_total;
+            }
+            if let Some(total) = self.solve_stars(row_alone, col_alone, pairs, row_to_col) {
+                return total;
+            }
+            self.last_fast = false;
+        }
 
         self.row_alone.clear();
         self.row_alone.extend(row_alone.iter().map(|&a| clamp_alone(a)));
@@ -441,6 +506,74 @@ impl SparseAssigner {
         self.col_taken.clear();
         self.col_taken.resize(n_c, false);
 
+        self.solve_clusters(pairs, row_to_col);
+
+        // Summed in index order so the figure does not depend on the
+        // order the clusters were found in.
+        let rows_total: f64 = self.row_cost.iter().sum();
+        let cols_total: f64 = self.col_alone.iter().zip(&self.col_taken).filter(|(_, t)| !**t).map(|(a, _)| *a).sum();
+        rows_total + cols_total
+    }
+
+    /// The fast path (see the module docs): if every cluster of valid
+    /// pairs is a star, decides each as [`SparseAssigner::solve_cluster`]
+    /// would (the same keys, comparisons and tie-breaking), writes the
+    /// choice and returns the total, summed as [`SparseAssigner::solve`]
+    /// sums it; otherwise writes nothing to `row_to_col` and returns `None`.
+    fn solve_stars(&mut self, row_alone: &[f64], col_alone: &[f64], pairs: &[(u32, u32, f64)], row_to_col: &mut [Option<u32>]) -> Option<f64> {
+        let (n_r, n_c) = (row_alone.len(), col_alone.len());
+        self.row_star.clear();
+        self.row_star.extend(row_alone.iter().map(|&a| Star::new(clamp_alone(a))));
+        self.col_star.clear();
+        self.col_star.extend(col_alone.iter().map(|&a| Star::new(clamp_alone(a))));
+        // Same filter as the general route's.
+        let valid = |&(r, c, w): &(u32, u32, f64)| (r as usize) < n_r && (c as usize) < n_c && w.is_finite();
+        for p in pairs.iter().filter(|p| valid(p)) {
+            self.row_star[p.0 as usize].degree += 1;
+            self.col_star[p.1 as usize].degree += 1;
+        }
+        // Each pair is offered to one end only, its star's centre.
+        for &(r, c, w) in pairs.iter().filter(|p| valid(p)) {
+            let (ri, ci) = (r as usize, c as usize);
+            if self.col_star[ci].degree == 1 {
+                // Centred on the row, or a lone pair: the general route's
+                // one-row cluster.
+                let key = w - self.col_star[ci].alone;
+                self.row_star[ri].offer(key, c, w);
+            } else if self.row_star[ri].degree == 1 {
+                // Centred on the column, with two rows or more: its
+                // one-column cluster.
+                let key = w - self.row_star[ri].alone;
+                self.col_star[ci].offer(key, r, w);
+            } else {
+                return None;
+            }
+        }
+        for r in 0..n_r {
+            let st = self.row_star[r];
+            if st.other != u32::MAX && st.key < st.alone {
+                row_to_col[r] = Some(st.other);
+                self.row_star[r].paid = st.w;
+                self.col_star[st.other as usize].taken = true;
+            }
+        }
+        for c in 0..n_c {
+            let st = self.col_star[c];
+            if st.other != u32::MAX && st.key < st.alone {
+                row_to_col[st.other as usize] = Some(c as u32);
+                self.row_star[st.other as usize].paid = st.w;
+                self.col_star[c].taken = true;
+            }
+        }
+        let rows_total: f64 = self.row_star.iter().map(|s| s.paid).sum();
+        let cols_total: f64 = self.col_star.iter().filter(|s| !s.taken).map(|s| s.alone).sum();
+        Some(rows_total + cols_total)
+    }
+
+    /// The general route: clusters by union-find, each solved exactly.
+    fn solve_clusters(&mut self, pairs: &[(u32, u32, f64)], row_to_col: &mut [Option<u32>]) {
+        let (n_r, n_c) = (self.row_alone.len(), self.col_alone.len());
+        let n = n_r + n_c;
         let valid = |&(r, c, w): &(u32, u32, f64)| (r as usize) < n_r && (c as usize) < n_c && w.is_finite();
 
         // Union the allowed pairs into clusters.
@@ -538,12 +671,6 @@ impl SparseAssigner {
         for c in 0..k {
             self.solve_cluster(c, pairs, row_to_col);
         }
-
-        // Summed in index order so the figure does not depend on the
-        // order the clusters were found in.
-        let rows_total: f64 = self.row_cost.iter().sum();
-        let cols_total: f64 = self.col_alone.iter().zip(&self.col_taken).filter(|(_, t)| !**t).map(|(a, _)| *a).sum();
-        rows_total + cols_total
     }
 
     fn solve_cluster(&mut self, c: usize, pairs: &[(u32, u32, f64)], row_to_col: &mut [Option<u32>]) {
@@ -897,6 +1024,139 @@ mod tests {
             let dense_total = lap.solve(n, n, &m, &mut dense_r2c).unwrap();
             assert!((total - dense_total).abs() <= 1e-9, "{total} vs {dense_total}");
         }
+    }
+
+    /// A random problem whose clusters are mostly stars (lone pairs, one
+    /// row with several columns, one column with several rows), then at
+    /// times an extra pair (which may join two stars into a cluster the
+    /// fast path must hand back), a repeated pair, or an unusable one.
+    /// Integer costs and leave-alone costs make exact ties and pairs
+    /// exactly as cheap as leaving both alone.
+    fn random_star_problem(rng: &mut ChaCha8Rng, integer: bool) -> (Vec<f64>, Vec<f64>, Vec<(u32, u32, f64)>) {
+        let nr = rng.random_range(0..=6usize);
+        let nc = rng.random_range(0..=6usize);
+        let draw = |rng: &mut ChaCha8Rng| if integer { rng.random_range(-2..3) as f64 } else { rng.random_range(-3.0..4.0) };
+        let row_alone: Vec<f64> = (0..nr).map(|_| draw(rng)).collect();
+        let col_alone: Vec<f64> = (0..nc).map(|_| draw(rng)).collect();
+        let mut rows: Vec<u32> = (0..nr as u32).collect();
+        let mut cols: Vec<u32> = (0..nc as u32).collect();
+        let mut pairs = Vec::new();
+        while !rows.is_empty() && !cols.is_empty() {
+            match rng.random_range(0..4) {
+                0 => {
+                    // A node left alone.
+                    if rng.random_bool(0.5) {
+                        rows.swap_remove(rng.random_range(0..rows.len()));
+                    } else {
+                        cols.swap_remove(rng.random_range(0..cols.len()));
+                    }
+                }
+                1 => {
+                    let r = rows.swap_remove(rng.random_range(0..rows.len()));
+                    for _ in 0..rng.random_range(1..=cols.len().min(3)) {
+                        let c = cols.swap_remove(rng.random_range(0..cols.len()));
+                        pairs.push((r, c, draw(rng)));
+                    }
+                }
+                2 => {
+                    let c = cols.swap_remove(rng.random_range(0..cols.len()));
+                    for _ in 0..rng.random_range(1..=rows.len().min(3)) {
+                        let r = rows.swap_remove(rng.random_range(0..rows.len()));
+                        pairs.push((r, c, draw(rng)));
+                    }
+                }
+                _ => {
+                    let r = rows.swap_remove(rng.random_range(0..rows.len()));
+                    let c = cols.swap_remove(rng.random_range(0..cols.len()));
+                    pairs.push((r, c, draw(rng)));
+                }
+            }
+        }
+        if nr > 0 && nc > 0 && rng.random_bool(0.3) {
+            let (r, c) = (rng.random_range(0..nr as u32), rng.random_range(0..nc as u32));
+            pairs.push((r, c, draw(rng)));
+        }
+        if !pairs.is_empty() && rng.random_bool(0.1) {
+            let p = pairs[rng.random_range(0..pairs.len())];
+            pairs.push((p.0, p.1, draw(rng)));
+        }
+        if rng.random_bool(0.1) {
+            // Skipped by both routes: out of range, or not finite.
+            let bad = [(nr as u32, 0, 1.0), (0, nc as u32, -1.0), (0, 0, f64::NAN), (0, 0, INF)];
+            pairs.push(bad[rng.random_range(0..bad.len())]);
+        }
+        let rot = if pairs.is_empty() { 0 } else { rng.random_range(0..pairs.len()) };
+        pairs.rotate_left(rot);
+        (row_alone, col_alone, pairs)
+    }
+
+    // The fast path against the general route (the same choice, the same
+    // total to the bit, ties included) and against brute force over the
+    // sparse objective's definition, on problems it takes and on problems
+    // it must hand back.
+    #[test]
+    fn fast_path_matches_general_route_and_brute_force() {
+        let mut rng = ChaCha8Rng::seed_from_u64(0x57a2);
+        let mut fast = SparseAssigner::new();
+        let mut general = SparseAssigner { no_fast_path: true, ..SparseAssigner::default() };
+        let (mut r2c_f, mut r2c_g) = (Vec::new(), Vec::new());
+        let (mut taken, mut handed_back, mut with_pairs_taken, mut tie_cases) = (0, 0, 0, 0);
+        for trial in 0..20_000 {
+            let (row_alone, col_alone, pairs) = random_star_problem(&mut rng, trial % 2 == 0);
+            let total_f = fast.solve(&row_alone, &col_alone, &pairs, &mut r2c_f);
+            let total_g = general.solve(&row_alone, &col_alone, &pairs, &mut r2c_g);
+            assert!(!general.last_fast);
+            assert_eq!(r2c_f, r2c_g, "trial {trial}: {row_alone:?} {col_alone:?} {pairs:?}");
+            assert_eq!(total_f.to_bits(), total_g.to_bits(), "trial {trial}");
+            // The brute force reads only pairs inside the problem (the
+            // solver skips the others, as its docs say).
+            let inside: Vec<_> = pairs.iter().copied().filter(|p| (p.0 as usize) < row_alone.len() && (p.1 as usize) < col_alone.len()).collect();
+            let best = brute_sparse(&row_alone, &col_alone, &inside);
+            assert!((best - total_f).abs() <= 1e-9, "trial {trial}: brute {best}, solver {total_f}");
+            if fast.last_fast {
+                taken += 1;
+                with_pairs_taken += usize::from(r2c_f.iter().any(Option::is_some));
+                // A pair exactly as cheap as leaving both ends alone.
+                tie_cases += usize::from(pairs.iter().any(|&(r, c, w)| {
+                    (r as usize) < row_alone.len() && (c as usize) < col_alone.len() && w - col_alone[c as usize] == row_alone[r as usize]
+                }));
+            } else {
+                handed_back += 1;
+            }
+        }
+        assert!(taken > 10_000 && handed_back > 2000 && with_pairs_taken > 5000 && tie_cases > 1000, "{taken} taken ({with_pairs_taken} with a pair, {tie_cases} with a tie), {handed_back} handed back");
+    }
+
+    // The rule of the cluster cases, worked by hand: a pair is taken only
+    // if strictly cheaper than leaving both alone; equal keys go to the
+    // lower index.
+    #[test]
+    fn fast_path_rule_and_ties_by_hand() {
+        let mut s = SparseAssigner::new();
+        let mut r2c = Vec::new();
+        // 3 − 2 = 1, not below row 0's 1: left alone. Total 1 + 2.
+        assert_eq!(s.solve(&[1.0], &[2.0], &[(0, 0, 3.0)], &mut r2c), 3.0);
+        assert!(s.last_fast);
+        assert_eq!(r2c, vec![None]);
+        // One row, two columns at equal keys (4 − 3 = 2 − 1 = 1 < 2):
+        // column 0, whatever the pair order.
+        for pairs in [[(0, 1, 2.0), (0, 0, 4.0)], [(0, 0, 4.0), (0, 1, 2.0)]] {
+            assert_eq!(s.solve(&[2.0], &[3.0, 1.0], &pairs, &mut r2c), 5.0);
+            assert!(s.last_fast);
+            assert_eq!(r2c, vec![Some(0)]);
+        }
+        // One column, two rows at equal keys (0 − 1 = 1 − 2 = −1 < 0):
+        // row 0; row 1 pays its own 2.
+        assert_eq!(s.solve(&[1.0, 2.0], &[0.0], &[(1, 0, 1.0), (0, 0, 0.0)], &mut r2c), 2.0);
+        assert!(s.last_fast);
+        assert_eq!(r2c, vec![Some(0), None]);
+        // A path of three pairs is no star: handed back, and solved.
+        assert_eq!(s.solve(&[0.0, 0.0], &[0.0, 0.0], &[(0, 0, -1.0), (1, 0, -1.0), (1, 1, -1.0)], &mut r2c), -2.0);
+        assert!(!s.last_fast);
+        assert_eq!(r2c, vec![Some(0), Some(1)]);
+        // A repeated pair too.
+        assert_eq!(s.solve(&[0.0], &[0.0], &[(0, 0, -1.0), (0, 0, -2.0)], &mut r2c), -2.0);
+        assert!(!s.last_fast);
     }
 
     // Bad input reported as typed errors (the contract in the docs).

@@ -25,6 +25,10 @@ pub(super) struct PruneScratch {
 /// pairs and those tied with the `T`-th, `T` the number of columns with a
 /// pair; see the module docs. Costs must not be NaN.
 pub(super) fn prune_pairs(pairs: &mut Vec<(u32, u32, f64)>, n_cols: usize, s: &mut PruneScratch) {
+    // No pair or one (most batches): no column can hold more than T.
+    if pairs.len() <= 1 {
+        return;
+    }
     s.per_col.clear();
     s.per_col.resize(n_cols, 0);
     for p in pairs.iter() {

@@ -37,6 +37,10 @@ use serde::{Deserialize, Serialize};
 /// How many of its radar's scan periods a candidate waits for a second plot.
 pub(crate) const CANDIDATE_SCANS: f64 = 1.5;
 
+/// The cheap reject of [`Engine::pair_likelihood`] is `|ν|² > this ×
+/// gate_d2 × var`: 1 % above the exact bound, against rounding.
+const PAIR_BOUND_MARGIN: f64 = 1.01;
+
 /// A plot that no track took, waiting for a second one.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 pub struct Candidate {
@@ -73,6 +77,10 @@ struct CandidateGrid {
     cell: f64,
     nx: usize,
     ny: usize,
+    /// `nx` and `ny` as floats (an integer-to-float conversion is not
+    /// free, and every search and filing compares against them).
+    nx_f: f64,
+    ny_f: f64,
     cells: Vec<Vec<u32>>,
     outside: Vec<u32>,
 }
@@ -91,17 +99,19 @@ impl CandidateGrid {
         let cell = (2.0 * reach).max(side / MAX_CELLS_PER_SIDE).max(1.0);
         let nx = ((x1 - x0) / cell).ceil() as usize + 1;
         let ny = ((y1 - y0) / cell).ceil() as usize + 1;
-        CandidateGrid { x0, y0, cell, nx, ny, cells: vec![Vec::new(); nx * ny], outside: Vec::new() }
+        CandidateGrid { x0, y0, cell, nx, ny, nx_f: nx as f64, ny_f: ny as f64, cells: vec![Vec::new(); nx * ny], outside: Vec::new() }
     }
 
     /// The cell's column and row, if inside the grid.
     fn locate(&self, x: f64, y: f64) -> Option<(usize, usize)> {
         let fx = (x - self.x0) / self.cell;
         let fy = (y - self.y0) / self.cell;
-        if !(fx >= 0.0 && fy >= 0.0 && fx < self.nx as f64 && fy < self.ny as f64) {
+        if !(fx >= 0.0 && fy >= 0.0 && fx < self.nx_f && fy < self.ny_f) {
             return None;
         }
-        Some((fx as usize, fy as usize))
+        // In [0, n) with n ≤ MAX_CELLS_PER_SIDE + 2: truncation through
+        // u32 is the same as through usize, and cheaper.
+        Some((fx as u32 as usize, fy as u32 as usize))
     }
 
     fn file(&mut self, i: u32, x: f64, y: f64) {
@@ -124,8 +134,8 @@ impl CandidateGrid {
     /// edge cells beside it; one farther out can reach nothing inside.
     fn near(&self, x: f64, y: f64, mut f: impl FnMut(u32)) {
         if self.nx > 0 && self.ny > 0 {
-            let (cols, nc) = near_on_axis((x - self.x0) / self.cell, self.nx);
-            let (rows, nr) = near_on_axis((y - self.y0) / self.cell, self.ny);
+            let (cols, nc) = near_on_axis((x - self.x0) / self.cell, self.nx, self.nx_f);
+            let (rows, nr) = near_on_axis((y - self.y0) / self.cell, self.ny, self.ny_f);
             for &iy in &rows[..nr] {
                 for &ix in &cols[..nc] {
                     for &i in &self.cells[iy * self.nx + ix] {
@@ -142,9 +152,8 @@ impl CandidateGrid {
 
 /// The cells on one axis within half a cell of the coordinate `f` (in
 /// cells from the grid's edge) on a grid of `n` cells: its own and the
-/// nearer neighbour, clipped to the grid.
-fn near_on_axis(f: f64, n: usize) -> ([usize; 2], usize) {
-    let top = n as f64;
+/// nearer neighbour, clipped to the grid. `top` is `n` as a float.
+fn near_on_axis(f: f64, n: usize, top: f64) -> ([usize; 2], usize) {
     if !(f >= -0.5 && f < top + 0.5) {
         return ([0, 0], 0);
     }
@@ -154,8 +163,10 @@ fn near_on_axis(f: f64, n: usize) -> ([usize; 2], usize) {
     if f >= top {
         return ([n - 1, 0], 1);
     }
-    let i = f as usize;
-    if f - i as f64 >= 0.5 {
+    // In [0, n): as in `locate`.
+    let iu = f as u32;
+    let i = iu as usize;
+    if f - f64::from(iu) >= 0.5 {
         if i + 1 < n { ([i, i + 1], 2) } else { ([i, 0], 1) }
     } else if i > 0 {
         ([i, i - 1], 2)
@@ -272,11 +283,51 @@ impl Engine {
         self.candidates.push(Candidate { z: [z.x, z.y], r: [r[(0, 0)], r[(0, 1)], r[(1, 1)]], time, expires: time.plus_secs(life), sensor, used: false });
     }
 
+    /// The log-likelihood of plot `z` (error `r`) in the gate of the track
+    /// that candidate `c` would start, predicted `dt > 0` seconds on, or
+    /// `None` outside the gate.
+    ///
+    /// A cheap reject comes first. Such a track starts at `c.z` with zero
+    /// velocity and turn rate, so every model predicts it as the CV model
+    /// does: mean `c.z`, position covariance `c.r + dt²·v²·I + q·dt³/3·I`
+    /// with `q` at most `max_accel_psd`. Its innovation covariance `S`
+    /// (that plus `r`) therefore has trace at most `var` below, and for a
+    /// positive definite `S` (the gate refuses any other)
+    /// `d² = νᵀ S⁻¹ ν ≥ |ν|² / λ_max(S) ≥ |ν|² / tr(S)`, so `|ν|² > gate_d2 ·
+    /// var` puts the plot outside every model's gate. The test is made
+    /// with a 1 % margin, far above the rounding of `var`, of `tr(S)` and
+    /// of the Cholesky `d²` when every term of `var` is ≥ 0; with a
+    /// negative variance on a diagonal (no real plot has one) the wider
+    /// bound of the grid search for tracks is used instead.
+    // Inlined into the search loop: most candidates stop at the reject,
+    // and the call would cost about as much as the test.
+    #[inline]
+    fn pair_likelihood(&self, c: &Candidate, z: &Vector2<f64>, r: &Matrix2<f64>, dt: f64) -> Option<f64> {
+        let v2 = self.init_speed_sigma * self.init_speed_sigma;
+        let (de, dn) = (z.x - c.z[0], z.y - c.z[1]);
+        let var = c.r[0] + c.r[2] + dt * dt * 2.0 * v2 + 2.0 * self.max_accel_psd * dt * dt * dt / 3.0 + r[(0, 0)] + r[(1, 1)];
+        let terms_nonneg = c.r[0] >= 0.0 && c.r[2] >= 0.0 && r[(0, 0)] >= 0.0 && r[(1, 1)] >= 0.0 && self.max_accel_psd >= 0.0;
+        let scale = if terms_nonneg { PAIR_BOUND_MARGIN } else { SECOND_CHANCE_SCALE };
+        if de * de + dn * dn > scale * self.gate_d2 * var {
+            return None;
+        }
+        self.pair_likelihood_exact(c, z, r, dt)
+    }
+
+    /// [`Engine::pair_likelihood`] without its cheap reject: the IMM
+    /// started on the candidate, predicted and gated as any track is.
+    #[inline(never)]
+    fn pair_likelihood_exact(&self, c: &Candidate, z: &Vector2<f64>, r: &Matrix2<f64>, dt: f64) -> Option<f64> {
+        let g = self.start_gaussian(&Vector2::new(c.z[0], c.z[1]), &Matrix2::new(c.r[0], c.r[1], c.r[1], c.r[2]));
+        let state = self.imm.init(g, Some(&self.mu0));
+        let pred = self.imm.predict_position(&state, dt);
+        imm_gate_position(self.imm.n_models(), &pred, 0.0, z, r, self.gate_d2)
+    }
+
     /// Looks for the candidate that `z` is most likely the second plot of;
     /// if there is one, starts the track (at the candidate, updated with
     /// `z`) and returns true.
     fn pair_with_candidate(&mut self, z: &Vector2<f64>, r: &Matrix2<f64>, time: Timestamp, sensor: SensorId, min_gap: f64, out: &mut Vec<TrackRecord>) -> bool {
-        let v2 = self.init_speed_sigma * self.init_speed_sigma;
         let mut best: Option<(f64, u32)> = None;
         let cands = &self.candidates;
         cands.grid.near(z.x, z.y, |i| {
@@ -290,17 +341,7 @@ impl Engine {
             if dt <= 0.0 || (c.sensor == sensor && dt < min_gap) {
                 return;
             }
-            // The bound the grid search uses for tracks, for the track
-            // the candidate would start (zero velocity, so no turn drift).
-            let (de, dn) = (z.x - c.z[0], z.y - c.z[1]);
-            let var = c.r[0] + c.r[2] + dt * dt * 2.0 * v2 + 2.0 * self.max_accel_psd * dt * dt * dt / 3.0 + r[(0, 0)] + r[(1, 1)];
-            if de * de + dn * dn > SECOND_CHANCE_SCALE * self.gate_d2 * var {
-                return;
-            }
-            let g = self.start_gaussian(&Vector2::new(c.z[0], c.z[1]), &Matrix2::new(c.r[0], c.r[1], c.r[1], c.r[2]));
-            let state = self.imm.init(g, Some(&self.mu0));
-            let pred = self.imm.predict_position(&state, dt);
-            let Some(ll) = imm_gate_position(self.imm.n_models(), &pred, 0.0, z, r, self.gate_d2) else { return };
+            let Some(ll) = self.pair_likelihood(c, z, r, dt) else { return };
             if best.is_none_or(|(b, bi)| ll > b || (ll == b && i < bi)) {
                 best = Some((ll, i));
             }
@@ -362,6 +403,61 @@ mod tests {
         filed += c.grid.outside.len();
         assert_eq!(filed, c.list.len());
         assert_eq!(c.live(now), want.len());
+    }
+
+    /// A radar-like plot covariance `[xx, xy, yy]`: a range and a
+    /// cross-range sigma (m) along a bearing (rad).
+    fn radar_cov(sr: f64, sx: f64, b: f64) -> [f64; 3] {
+        let (s, c) = b.sin_cos();
+        let (a, d) = (sr * sr, sx * sx);
+        [a * s * s + d * c * c, (a - d) * s * c, a * c * c + d * s * s]
+    }
+
+    /// The cheap reject before the IMM never refuses a plot the gate
+    /// takes: the likelihood with it equals the one without it (the IMM
+    /// started on the candidate, predicted and gated as any track is, the
+    /// definition), on random candidates and plots around the gate's edge,
+    /// with the vessel IMM and with the single CV model.
+    #[test]
+    fn the_cheap_pair_reject_keeps_every_gated_plot() {
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(0x9a1e);
+        let base = include_str!("../../demo-feeds/busy-afternoon/config.toml");
+        for motion in ["imm", "cv"] {
+            let text = format!("{base}\nmotion = \"{motion}\"\n");
+            let cfg = Config::from_toml_str(&text, "busy-afternoon", &HashMap::new()).unwrap();
+            let e = Engine::new(&cfg).unwrap();
+            let (mut inside, mut only_tight, mut max_ratio) = (0, 0, 0.0f64);
+            for _ in 0..20_000 {
+                let cb = rng.random_range(0.0..6.3f64);
+                let cr = radar_cov(rng.random_range(5.0..30.0), rng.random_range(1.0..120.0), cb);
+                let pr = radar_cov(rng.random_range(5.0..30.0), rng.random_range(1.0..120.0), rng.random_range(0.0..6.3));
+                let c = Candidate { z: [rng.random_range(-9000.0..9000.0), rng.random_range(-9000.0..9000.0)], r: cr, time: ts(100.0), expires: ts(104.5), sensor: 0, used: false };
+                let r = Matrix2::new(pr[0], pr[1], pr[1], pr[2]);
+                let dt = rng.random_range(0.01..4.5);
+                let v2 = e.init_speed_sigma * e.init_speed_sigma;
+                let var = c.r[0] + c.r[2] + dt * dt * 2.0 * v2 + 2.0 * e.max_accel_psd * dt * dt * dt / 3.0 + r[(0, 0)] + r[(1, 1)];
+                // A distance up to 1.3× the bound's, in a random direction
+                // or along one of the candidate's axes (along the longer
+                // one d² comes closest to the bound).
+                let dist = (rng.random_range(0.0..1.3f64) * e.gate_d2 * var).sqrt();
+                let dir = if rng.random_bool(0.5) { rng.random_range(0.0..6.3f64) } else { cb + std::f64::consts::FRAC_PI_2 * f64::from(rng.random_range(0..4u8)) };
+                let z = Vector2::new(c.z[0] + dist * dir.sin(), c.z[1] + dist * dir.cos());
+                let got = e.pair_likelihood(&c, &z, &r, dt);
+                let want = e.pair_likelihood_exact(&c, &z, &r, dt);
+                assert_eq!(got.map(f64::to_bits), want.map(f64::to_bits), "{c:?} {z:?} {r:?} {dt}");
+                let ratio = dist * dist / (e.gate_d2 * var);
+                if want.is_some() {
+                    inside += 1;
+                    max_ratio = max_ratio.max(ratio);
+                } else if ratio > PAIR_BOUND_MARGIN && ratio <= SECOND_CHANCE_SCALE {
+                    only_tight += 1;
+                }
+            }
+            // Both outcomes seen, the reject did work the wider bound did
+            // not, and the gate reaches close to the bound (it is tight).
+            assert!(inside > 1000 && only_tight > 1000 && max_ratio > 0.8, "{motion}: {inside} inside, {only_tight} rejected by the tight bound only, max ratio {max_ratio}");
+        }
     }
 
     /// The four-cell search finds every filed point within half a cell of
