@@ -5,20 +5,17 @@
 //! Figures go in BENCHMARKS.md.
 //!
 //! Each case runs twice: timed by the wall clock (criterion's default) and
-//! by the process's CPU time, every thread together (`cpu/…`,
-//! `CLOCK_PROCESS_CPUTIME_ID`). The machine is shared, so the CPU time is
-//! the steadier figure of the work done; `skerry track` writes its output
-//! on a second thread, so its wall time and its CPU time differ.
-//! `offline/track_one_thread` is the same work with the output written
-//! inline, for comparison.
+//! by the thread's own CPU time (`cpu/…`, `CLOCK_THREAD_CPUTIME_ID`). The
+//! machine is shared, so the CPU time is the steadier figure of what one
+//! core does.
 
 use criterion::measurement::Measurement;
 use criterion::{Criterion, Throughput, criterion_group, criterion_main};
 use skerry::config::Config;
 use skerry::engine::Engine;
 use skerry::feed::Record;
+use skerry::feed::tracks::TrackLineWriter;
 use skerry::offline::read_feeds;
-use skerry::offline::writer::{Sink, TrackWriter};
 use std::hint::black_box;
 use std::path::PathBuf;
 
@@ -58,35 +55,18 @@ fn engine_throughput<M: Measurement>(c: &mut Criterion<M>, prefix: &str) {
     g.bench_function("check", |b| b.iter(|| black_box(read_feeds(std::slice::from_ref(&feed), &cfg).expect("feed").records.len())));
     g.bench_function("track", |b| {
         b.iter(|| {
-            // As `skerry track` does: the records handed to the writer
-            // thread a few hundred at a time (offline/writer.rs).
-            let f = read_feeds(std::slice::from_ref(&feed), &cfg).expect("feed");
-            let mut engine = Engine::new(&cfg).expect("engine");
-            let mut writer = TrackWriter::spawn(Sink::Other(Box::new(std::io::sink()))).expect("writer");
-            let mut out = Vec::with_capacity(512);
-            for r in &f.records {
-                engine.handle(r, &mut out);
-                if out.len() > 256 {
-                    writer.send(&mut out).expect("send");
-                }
-            }
-            engine.finish(&mut out);
-            writer.send(&mut out).expect("send");
-            black_box(writer.finish().expect("written"))
-        })
-    });
-    g.bench_function("track_one_thread", |b| {
-        b.iter(|| {
             let f = read_feeds(std::slice::from_ref(&feed), &cfg).expect("feed");
             let mut engine = Engine::new(&cfg).expect("engine");
             let mut out = Vec::new();
-            // Lines as bytes into one buffer, emptied every 64 KiB.
+            // As `skerry track` writes: lines as bytes into one buffer,
+            // emptied every 64 KiB.
             let mut line: Vec<u8> = Vec::with_capacity(1 << 17);
+            let mut lines = TrackLineWriter::new();
             let mut bytes = 0usize;
             for r in &f.records {
                 engine.handle(r, &mut out);
                 for t in out.drain(..) {
-                    t.write_json_bytes(&mut line);
+                    lines.write(&t, &mut line);
                     line.push(b'\n');
                 }
                 if line.len() >= 1 << 16 {
@@ -96,7 +76,7 @@ fn engine_throughput<M: Measurement>(c: &mut Criterion<M>, prefix: &str) {
             }
             engine.finish(&mut out);
             for t in out.drain(..) {
-                t.write_json_bytes(&mut line);
+                lines.write(&t, &mut line);
                 line.push(b'\n');
             }
             black_box(bytes + line.len())
@@ -112,14 +92,14 @@ fn wall(c: &mut Criterion) {
     engine_throughput(c, "");
 }
 
-fn on_cpu(c: &mut Criterion<cpu::ProcessCpu>) {
+fn on_cpu(c: &mut Criterion<cpu::ThreadCpu>) {
     engine_throughput(c, "cpu/");
 }
 
 criterion_group!(wall_clock, wall);
 criterion_group! {
     name = cpu_time;
-    config = Criterion::default().with_measurement(cpu::ProcessCpu);
+    config = Criterion::default().with_measurement(cpu::ThreadCpu);
     targets = on_cpu
 }
 criterion_main!(wall_clock, cpu_time);

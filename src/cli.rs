@@ -3,12 +3,13 @@
 
 use crate::config::Config;
 use crate::engine::Engine;
+use crate::feed::tracks::TrackLineWriter;
 use crate::offline::trade::{report_trade_rejects, summary_table};
-use crate::offline::writer::{Sink, TrackWriter};
 use crate::offline::{NmeaInput, TradeInputs, read_inputs, report_rejects};
 use crate::time::Timestamp;
 use anyhow::{Context, Result};
 use clap::{Parser, Subcommand};
+use std::io::Write;
 use std::path::PathBuf;
 
 #[derive(Parser, Debug)]
@@ -114,23 +115,40 @@ pub fn track(args: &TrackArgs) -> Result<()> {
     report_trade_rejects(&trade, &sensors);
     report_rejects(&feed, &sensors);
     let mut engine = Engine::new(&cfg)?;
-    let sink = match &args.out {
-        Some(p) => Sink::Other(Box::new(std::fs::File::create(p).with_context(|| format!("{}: cannot create", p.display()))?)),
-        None => Sink::Stdout,
+    let sink: Box<dyn Write> = match &args.out {
+        Some(p) => Box::new(std::fs::File::create(p).with_context(|| format!("{}: cannot create", p.display()))?),
+        None => Box::new(std::io::stdout().lock()),
     };
-    // The lines are formatted and written on a thread of their own
-    // (offline/writer.rs), handed over a few hundred records at a time.
-    let mut writer = TrackWriter::spawn(sink)?;
-    let mut out = Vec::with_capacity(512);
+    let mut w = sink;
+    let mut out = Vec::new();
+    // Lines are written as bytes straight into one buffer, handed to the
+    // sink about 64 KiB at a time.
+    let mut buf: Vec<u8> = Vec::with_capacity(1 << 17);
+    let mut written = 0u64;
+    // Keeps the date-and-time text from one line to the next.
+    let mut lines = TrackLineWriter::new();
+    let mut flush = |out: &mut Vec<crate::feed::TrackRecord>, w: &mut Box<dyn Write>, last: bool| -> Result<()> {
+        for r in out.drain(..) {
+            lines.write(&r, &mut buf);
+            buf.push(b'\n');
+            written += 1;
+        }
+        if last || buf.len() >= 1 << 16 {
+            w.write_all(&buf)?;
+            buf.clear();
+        }
+        Ok(())
+    };
     for r in &feed.records {
         engine.handle(r, &mut out);
         if out.len() > 256 {
-            writer.send(&mut out)?;
+            flush(&mut out, &mut w, false)?;
         }
     }
     engine.finish(&mut out);
-    writer.send(&mut out)?;
-    let written = writer.finish()?;
+    flush(&mut out, &mut w, true)?;
+    w.flush()?;
+    drop(w);
     let s = engine.stats();
     eprintln!(
         "{} records tracked ({} rejected); {} track records written; tracks started {}, live at end {} ({} confirmed, {} coasting, {} tentative)",

@@ -17,7 +17,6 @@
 //! recordings) and merges them with the JSON files ([`read_inputs`]).
 
 pub mod trade;
-pub mod writer;
 
 pub use trade::{InputError, NmeaInput, TradeInputs, TradeSummary, read_inputs};
 

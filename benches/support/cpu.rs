@@ -1,11 +1,6 @@
-//! CPU time as a criterion measurement, shared by the benches that report
-//! CPU time beside wall time: the calling thread's
-//! (`CLOCK_THREAD_CPUTIME_ID`, [`ThreadCpu`]) or the whole process's, all
-//! threads together (`CLOCK_PROCESS_CPUTIME_ID`, [`ProcessCpu`]), for work
-//! that runs on more than one thread.
-
-// Each bench that includes this file uses one of the two clocks.
-#![allow(dead_code)]
+//! The calling thread's CPU time (Linux `CLOCK_THREAD_CPUTIME_ID`) as a
+//! criterion measurement, shared by the benches that report CPU time
+//! beside wall time.
 
 use criterion::measurement::{Measurement, ValueFormatter, WallTime};
 
@@ -17,19 +12,14 @@ struct Timespec {
 unsafe extern "C" {
     fn clock_gettime(clock: i32, ts: *mut Timespec) -> i32;
 }
-const CLOCK_PROCESS_CPUTIME_ID: i32 = 2;
 const CLOCK_THREAD_CPUTIME_ID: i32 = 3;
 
-fn clock_ns(clock: i32) -> u64 {
+fn now_ns() -> u64 {
     let mut ts = Timespec { tv_sec: 0, tv_nsec: 0 };
     // SAFETY: a valid, writable timespec and a clock id Linux defines.
-    let rc = unsafe { clock_gettime(clock, &mut ts) };
-    assert_eq!(rc, 0, "clock_gettime({clock}) failed");
+    let rc = unsafe { clock_gettime(CLOCK_THREAD_CPUTIME_ID, &mut ts) };
+    assert_eq!(rc, 0, "clock_gettime(CLOCK_THREAD_CPUTIME_ID) failed");
     ts.tv_sec as u64 * 1_000_000_000 + ts.tv_nsec as u64
-}
-
-fn now_ns() -> u64 {
-    clock_ns(CLOCK_THREAD_CPUTIME_ID)
 }
 
 static WALL: WallTime = WallTime;
@@ -56,32 +46,6 @@ impl Measurement for ThreadCpu {
     }
     fn formatter(&self) -> &dyn ValueFormatter {
         // Values are nanoseconds, as for the wall clock.
-        WALL.formatter()
-    }
-}
-
-/// The CPU time of every thread of the process together.
-pub struct ProcessCpu;
-
-impl Measurement for ProcessCpu {
-    type Intermediate = u64;
-    type Value = u64;
-    fn start(&self) -> u64 {
-        clock_ns(CLOCK_PROCESS_CPUTIME_ID)
-    }
-    fn end(&self, i: u64) -> u64 {
-        clock_ns(CLOCK_PROCESS_CPUTIME_ID) - i
-    }
-    fn add(&self, a: &u64, b: &u64) -> u64 {
-        a + b
-    }
-    fn zero(&self) -> u64 {
-        0
-    }
-    fn to_f64(&self, v: &u64) -> f64 {
-        *v as f64
-    }
-    fn formatter(&self) -> &dyn ValueFormatter {
         WALL.formatter()
     }
 }
