@@ -48,6 +48,7 @@
 
 pub mod assign;
 mod bound;
+mod cells;
 pub mod filter;
 pub mod imm;
 pub mod jpda;
@@ -208,7 +209,7 @@ pub struct Engine {
     /// Live tracks, in order of creation (so of track number).
     tracks: Vec<Track>,
     /// Grid cell → indices into `tracks`.
-    grid: CellMap,
+    grid: cells::TrackCells,
     wide: Vec<u32>,
     /// Identity → index into `tracks`.
     identities: HashMap<Arc<str>, u32>,
@@ -271,14 +272,12 @@ pub(crate) fn imm_gate(n_models: usize, pred: &imm::ImmState, lead: f64, z: &Vec
     Some(m + terms.iter().map(|t| (t - m).exp()).sum::<f64>().ln())
 }
 
-/// Grid cell → indices into the track table. The key is two small
-/// integers that the engine makes itself, so a multiplicative hash does:
-/// the standard library's SipHash (made to resist chosen keys) was a
-/// tenth of the engine's time in the busy demo.
-type CellMap = HashMap<(i32, i32), Vec<u32>, std::hash::BuildHasherDefault<CellHasher>>;
-
-/// Fibonacci-style hashing of the cell's two coordinates (the Fx hash's
-/// step, common practice).
+/// Fibonacci-style hashing of a grid cell's two coordinates (the Fx
+/// hash's step, common practice), for the cells outside the track grid's
+/// dense part (cells.rs). The key is two small integers that the engine
+/// makes itself, so a multiplicative hash does: the standard library's
+/// SipHash (made to resist chosen keys) was a tenth of the engine's time
+/// in the busy demo.
 #[derive(Default)]
 struct CellHasher(u64);
 
@@ -457,7 +456,7 @@ impl Engine {
             max_plot_var,
             max_accel_psd: t.quiet_accel_psd.max(t.manoeuvre_accel_psd).max(t.turn_accel_psd),
             tracks: Vec::new(),
-            grid: CellMap::default(),
+            grid: cells::TrackCells::default(),
             wide: Vec::new(),
             identities: HashMap::new(),
             next_number: 1,
@@ -480,6 +479,7 @@ impl Engine {
             candidates: initiate::Candidates::default(),
         };
         e.candidates = initiate::Candidates::new(&e.models, e.candidate_reach_m());
+        e.grid = cells::TrackCells::over(&e.models, CELL_M);
         Ok(e)
     }
 
@@ -686,7 +686,7 @@ impl Engine {
             t.look(true, &rules);
             t.cell = cell;
         }
-        self.grid.entry(cell).or_default().push(idx);
+        self.grid.push(cell, idx);
         idx
     }
 
@@ -698,15 +698,8 @@ impl Engine {
             return;
         }
         let old = t.cell;
-        if let Some(v) = self.grid.get_mut(&old) {
-            if let Some(k) = v.iter().position(|&i| i == idx) {
-                v.swap_remove(k);
-            }
-            if v.is_empty() {
-                self.grid.remove(&old);
-            }
-        }
-        self.grid.entry(cell).or_default().push(idx);
+        self.grid.take_out(old, idx);
+        self.grid.push(cell, idx);
         self.tracks[idx as usize].cell = cell;
     }
 
@@ -792,13 +785,7 @@ impl Engine {
         for (row, plot) in batch.plots.iter().enumerate() {
             let (cx, cy) = cell_of(&plot.z);
             sc.cand.clear();
-            for dx in -1..=1 {
-                for dy in -1..=1 {
-                    if let Some(v) = self.grid.get(&(cx + dx, cy + dy)) {
-                        sc.cand.extend_from_slice(v);
-                    }
-                }
-            }
+            self.grid.gather_around(cx, cy, &mut sc.cand);
             sc.cand.extend(self.wide.iter().copied());
             // Fixed order, whatever the grid's layout. A wide track filed
             // in a nearby cell comes twice: dropping the repeat here costs
@@ -1079,13 +1066,11 @@ impl Engine {
         self.stats.tracks_ended += (before - self.tracks.len()) as u64;
         // Refill the cells in place: most keep their tracks from one scan
         // to the next, so their buffers are reused.
-        for v in self.grid.values_mut() {
-            v.clear();
-        }
+        self.grid.clear_lists();
         self.wide.clear();
         self.identities.clear();
         for (i, t) in self.tracks.iter().enumerate() {
-            self.grid.entry(t.cell).or_default().push(i as u32);
+            self.grid.push(t.cell, i as u32);
             if t.wide {
                 self.wide.push(i as u32);
             }
@@ -1093,7 +1078,7 @@ impl Engine {
                 self.identities.insert(id.clone(), i as u32);
             }
         }
-        self.grid.retain(|_, v| !v.is_empty());
+        self.grid.drop_empty();
     }
 }
 

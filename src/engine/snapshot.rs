@@ -142,7 +142,7 @@ impl Engine {
             plots_to_start: _,
             candidates,
         } = self;
-        let mut grid: Vec<((i32, i32), Vec<u32>)> = grid.iter().map(|(c, v)| (*c, v.clone())).collect();
+        let mut grid: Vec<((i32, i32), Vec<u32>)> = grid.iter().map(|(c, v)| (c, v.clone())).collect();
         grid.sort_unstable_by_key(|(c, _)| *c);
         let mut identities: Vec<(Arc<str>, u32)> = identities.iter().map(|(k, v)| (k.clone(), *v)).collect();
         identities.sort_unstable_by(|a, b| a.0.cmp(&b.0));
@@ -242,7 +242,7 @@ impl Engine {
         }
         e.pending_compact = state.pending_compact;
         e.tracks = state.tracks;
-        e.grid = state.grid.into_iter().collect();
+        e.grid.fill(state.grid);
         e.wide = state.wide;
         e.identities = state.identities.into_iter().collect();
         e.next_number = state.next_number;
