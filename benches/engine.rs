@@ -85,6 +85,29 @@ fn engine_throughput<M: Measurement>(c: &mut Criterion<M>, prefix: &str) {
     g.finish();
 }
 
+/// The two commands as a user runs them: `skerry check` on the file, and
+/// `skerry track` writing its tracks to a file, each a whole process
+/// (start-up, configuration, reading, and for track the engine and the
+/// file written). Timed by the wall clock only: the work is in a child
+/// process, which the thread CPU clock does not see.
+fn commands(c: &mut Criterion) {
+    let (_, feed) = scenario();
+    let dir = feed.parent().expect("scenario dir").to_path_buf();
+    let config = dir.join("config.toml");
+    let bin = env!("CARGO_BIN_EXE_skerry");
+    let out = std::env::temp_dir().join(format!("skerry-bench-tracks-{}.jsonl", std::process::id()));
+    let run = |args: &[&std::ffi::OsStr]| {
+        let st = std::process::Command::new(bin).args(args).stdout(std::process::Stdio::null()).stderr(std::process::Stdio::null()).status().expect("run skerry");
+        assert!(st.success(), "skerry {args:?} failed");
+    };
+    let mut g = c.benchmark_group("command");
+    g.sample_size(40);
+    g.bench_function("check", |b| b.iter(|| run(&["check".as_ref(), "--config".as_ref(), config.as_os_str(), feed.as_os_str()])));
+    g.bench_function("track", |b| b.iter(|| run(&["track".as_ref(), "--config".as_ref(), config.as_os_str(), "--out".as_ref(), out.as_os_str(), feed.as_os_str()])));
+    g.finish();
+    let _ = std::fs::remove_file(&out);
+}
+
 #[path = "support/cpu.rs"]
 mod cpu;
 
@@ -96,7 +119,7 @@ fn on_cpu(c: &mut Criterion<cpu::ThreadCpu>) {
     engine_throughput(c, "cpu/");
 }
 
-criterion_group!(wall_clock, wall);
+criterion_group!(wall_clock, wall, commands);
 criterion_group! {
     name = cpu_time;
     config = Criterion::default().with_measurement(cpu::ThreadCpu);
