@@ -44,16 +44,7 @@ impl TrackCells {
     /// A grid of `cell_m`-metre cells whose dense part covers every
     /// radar's range with a margin.
     pub(crate) fn over(models: &[SensorModel], cell_m: f64) -> TrackCells {
-        let (mut x0, mut y0, mut x1, mut y1) = (f64::INFINITY, f64::INFINITY, f64::NEG_INFINITY, f64::NEG_INFINITY);
-        for m in models {
-            if let Some(r) = &m.radar {
-                let (c, d) = (r.antenna.site_en, m.max_range_m + DENSE_MARGIN_M);
-                x0 = x0.min(c.x - d);
-                y0 = y0.min(c.y - d);
-                x1 = x1.max(c.x + d);
-                y1 = y1.max(c.y + d);
-            }
-        }
+        let (x0, y0, x1, y1) = super::sensors::coverage_box(models, DENSE_MARGIN_M);
         if !(x1 > x0 && y1 > y0 && cell_m > 0.0) {
             return TrackCells::default();
         }

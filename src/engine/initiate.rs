@@ -188,16 +188,7 @@ impl Candidates {
     /// An empty store whose grid covers every radar's range (in the site
     /// plane) for pairs reaching `reach` metres.
     pub(crate) fn new(models: &[SensorModel], reach: f64) -> Candidates {
-        let (mut x0, mut y0, mut x1, mut y1) = (f64::INFINITY, f64::INFINITY, f64::NEG_INFINITY, f64::NEG_INFINITY);
-        for m in models {
-            if let Some(r) = &m.radar {
-                let (c, d) = (r.antenna.site_en, m.max_range_m + reach);
-                x0 = x0.min(c.x - d);
-                y0 = y0.min(c.y - d);
-                x1 = x1.max(c.x + d);
-                y1 = y1.max(c.y + d);
-            }
-        }
+        let (x0, y0, x1, y1) = super::sensors::coverage_box(models, reach);
         Candidates { list: Vec::new(), grid: CandidateGrid::new(x0, y0, x1, y1, reach), after_compact: 0 }
     }
 

@@ -125,6 +125,22 @@ pub struct SensorModel {
     pub position_sigma_m: f64,
 }
 
+/// The box `(x0, y0, x1, y1)` in the site plane holding every radar's
+/// maximum range and `margin` metres more; empty (x0 > x1) with no radar.
+pub(crate) fn coverage_box(models: &[SensorModel], margin: f64) -> (f64, f64, f64, f64) {
+    let (mut x0, mut y0, mut x1, mut y1) = (f64::INFINITY, f64::INFINITY, f64::NEG_INFINITY, f64::NEG_INFINITY);
+    for m in models {
+        if let Some(r) = &m.radar {
+            let (c, d) = (r.antenna.site_en, m.max_range_m + margin);
+            x0 = x0.min(c.x - d);
+            y0 = y0.min(c.y - d);
+            x1 = x1.max(c.x + d);
+            y1 = y1.max(c.y + d);
+        }
+    }
+    (x0, y0, x1, y1)
+}
+
 impl SensorModel {
     pub fn new(s: &SensorConfig, site: &LocalFrame) -> Self {
         let radar = match (s.kind, s.lat_deg, s.lon_deg) {
