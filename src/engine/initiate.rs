@@ -371,7 +371,12 @@ mod tests {
     fn compaction_keeps_the_live_candidates_in_order() {
         let mut c = Candidates { list: Vec::new(), grid: CandidateGrid::new(-1000.0, -5000.0, 30_000.0, 5000.0, 400.0), after_compact: 0 };
         for i in 0..200 {
-            c.push(cand(f64::from(i) * 137.0, f64::from(i) * 0.05));
+            let mut x = cand(f64::from(i) * 137.0, f64::from(i) * 0.05);
+            // Some beyond the grid, in the outside list.
+            if i % 7 == 0 {
+                x.z[1] = 9000.0;
+            }
+            c.push(x);
         }
         for i in (0..200).step_by(3) {
             c.list[i].used = true;
@@ -391,6 +396,11 @@ mod tests {
             }
             assert!(v.windows(2).all(|w| w[0] < w[1]), "creation order within a cell");
         }
+        for &i in &c.grid.outside {
+            let x = &c.list[i as usize];
+            assert!(c.grid.locate(x.z[0], x.z[1]).is_none());
+        }
+        assert!(!c.grid.outside.is_empty());
         filed += c.grid.outside.len();
         assert_eq!(filed, c.list.len());
         assert_eq!(c.live(now), want.len());
