@@ -62,13 +62,7 @@ impl Engine {
         let (cx, cy) = cell_of(&z);
         let mut cands = std::mem::take(&mut self.report_cand);
         cands.clear();
-        for dx in -1..=1 {
-            for dy in -1..=1 {
-                if let Some(v) = self.grid.get(&(cx + dx, cy + dy)) {
-                    cands.extend(v.iter().copied());
-                }
-            }
-        }
+        self.grid.gather_around(cx, cy, &mut cands);
         cands.extend(self.wide.iter().copied());
         cands.sort_unstable();
         cands.dedup();
