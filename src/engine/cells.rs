@@ -140,14 +140,16 @@ impl TrackCells {
         }
     }
 
-    /// Empties every cell, keeping the dense cells' buffers (and the
-    /// map's lists until [`TrackCells::drop_empty`]) for refilling.
-    pub(crate) fn clear_lists(&mut self) {
-        for v in &mut self.dense {
-            v.clear();
-        }
-        for v in self.sparse.values_mut() {
-            v.clear();
+    /// Empties cell `c`, keeping its buffer for refilling (a map cell's
+    /// until [`TrackCells::drop_empty`]).
+    pub(crate) fn empty(&mut self, c: Cell) {
+        match self.slot(c) {
+            Some(k) => self.dense[k].clear(),
+            None => {
+                if let Some(v) = self.sparse.get_mut(&c) {
+                    v.clear();
+                }
+            }
         }
     }
 
@@ -221,7 +223,9 @@ mod tests {
             at[idx as usize] = Some(c);
             if step % 997 == 0 {
                 // Refill as compaction does.
-                g.clear_lists();
+                for c in at.iter().flatten() {
+                    g.empty(*c);
+                }
                 want.clear();
                 for (i, c) in at.iter().enumerate() {
                     if let Some(c) = c {

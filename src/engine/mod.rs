@@ -1062,11 +1062,15 @@ impl Engine {
     fn compact(&mut self) {
         self.pending_compact = false;
         let before = self.tracks.len();
+        // Every track, ended or not, is filed in its cell: emptying those
+        // cells empties the grid, at a cost in tracks rather than in
+        // cells. They are refilled in place: most keep their tracks from
+        // one scan to the next, so their buffers are reused.
+        for t in &self.tracks {
+            self.grid.empty(t.cell);
+        }
         self.tracks.retain(|t| t.status != TrackStatus::Ended);
         self.stats.tracks_ended += (before - self.tracks.len()) as u64;
-        // Refill the cells in place: most keep their tracks from one scan
-        // to the next, so their buffers are reused.
-        self.grid.clear_lists();
         self.wide.clear();
         self.identities.clear();
         for (i, t) in self.tracks.iter().enumerate() {
